@@ -14,7 +14,9 @@ const sourceSchema = z
     paths: z
       .array(z.string().min(1))
       .min(1, 'list at least one folder, file or glob')
-      .describe('Folders (walked recursively), files or globs (*, **, ?). Relative paths resolve from the config file.'),
+      .describe(
+        'Folders (walked recursively), files or globs (*, **, ?). Relative paths resolve from the config file.',
+      ),
     format: z
       .enum(['auto', 'parquet', 'arrow'])
       .default('auto')
@@ -29,7 +31,9 @@ const sourceSchema = z
         epochUnit: z
           .enum(['s', 'ms', 'us', 'ns'])
           .default('ms')
-          .describe('For numeric x columns only: the unit of the epoch number. Timestamp columns carry their own unit.'),
+          .describe(
+            'For numeric x columns only: the unit of the epoch number. Timestamp columns carry their own unit.',
+          ),
       })
       .strict(),
     y: z.object({ column: columnName }).strict(),

@@ -24,7 +24,13 @@ export type WindowSpec =
   | { readonly kind: 'calendar'; readonly unit: CalendarUnit; readonly timeZone: string; readonly label: string }
 
 const fixedPattern = /^([1-9][0-9]*)(s|m|h|d|w)$/
-const fixedUnitMs: Readonly<Record<string, number>> = { s: 1000, m: 60_000, h: 3_600_000, d: 86_400_000, w: 604_800_000 }
+const fixedUnitMs: Readonly<Record<string, number>> = {
+  s: 1000,
+  m: 60_000,
+  h: 3_600_000,
+  d: 86_400_000,
+  w: 604_800_000,
+}
 
 /**
  * Parses a window size: `15m`, `6h`, `1d`, `7d`, `2w` (fixed) or `day`, `isoweek`, `month` (calendar
