@@ -124,7 +124,10 @@ const webhookSchema = z
     name: z.string().min(1),
     url: z.string().url('must be an http(s) URL'),
     format: z.enum(['text', 'cloudevents']).default('text'),
-    secret: z.string().optional().describe('HMAC key; write it as an environment reference (dollar-brace NAME brace) so it stays out of the file'),
+    secret: z
+      .string()
+      .optional()
+      .describe('HMAC key; write it as an environment reference (dollar-brace NAME brace) so it stays out of the file'),
     timeoutMs: z.number().int().positive().default(10_000),
     maxAttempts: z.number().int().min(1).max(20).default(5),
     minBackoffMs: z.number().int().min(0).default(500),
