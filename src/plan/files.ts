@@ -1,0 +1,152 @@
+/**
+ * Which input files a run must read: a pure diff of the discovered files against the committed
+ * ledger (design.md "Data flow": plan). The caller stats the files, asks `filesToFingerprint` which
+ * ones need a content fingerprint, computes those (store/fingerprint.ts), then calls `planFiles`.
+ * No I/O, no clock.
+ */
+
+/** One consumed input file as the ledger records it (store/ledger.ts persists these). */
+export interface LedgerEntry {
+  /** Absolute path of the input file. */
+  readonly path: string
+  /** Size in bytes when it was read. */
+  readonly size: number
+  /** Modification time (epoch ms, as `fs.Stats.mtimeMs`) when it was read. */
+  readonly mtimeMs: number
+  /** Content fingerprint (store/fingerprint.ts), hex SHA-256. */
+  readonly fingerprint: string
+  /** Id of the run that read it. */
+  readonly runId: string
+}
+
+/** What discovery knows about a file before reading it. */
+export interface StatFile {
+  readonly path: string
+  readonly size: number
+  readonly mtimeMs: number
+}
+
+/** A discovered file with its plan decision inputs. */
+export interface PlannedFile extends StatFile {
+  /** Fingerprint computed this run, or the ledger's when the stat pre-check skipped the read. */
+  readonly fingerprint: string | null
+  /** The committed ledger entry for this path, if any. */
+  readonly previous: LedgerEntry | null
+}
+
+/** The diff of one run; every list is sorted by path (code-unit order). */
+export interface FilePlan {
+  /** Not in the ledger: read them. */
+  readonly new: readonly PlannedFile[]
+  /** In the ledger with a different fingerprint (or unknown content and different stat): read them. */
+  readonly changed: readonly PlannedFile[]
+  /** In the ledger but not discovered: drop their partials. */
+  readonly deleted: readonly LedgerEntry[]
+  /** Same content as the ledger says: skip. `fingerprint` is always set here. */
+  readonly unchanged: readonly PlannedFile[]
+}
+
+/** Options of the stat pre-check. */
+export interface FingerprintCheckOptions {
+  /**
+   * Fingerprint every file already in the ledger, even when its size and mtime match (`run --verify`).
+   * Default false: equal size and mtime mean unchanged without reading a byte.
+   */
+  readonly verify?: boolean
+}
+
+/**
+ * True when size and mtime equal the ledger's, so the file counts as unchanged without reading it.
+ *
+ * Trade-off: this is what makes a no-op run O(number of files) stat calls. It misses a rewrite that
+ * keeps the exact size and restores (or cannot move) the mtime: tools that copy with preserved times
+ * (`cp -p`, `rsync -t`) onto a file of the same size, or a same-size rewrite within the mtime
+ * granularity of a coarse filesystem (1–2 s on some network and FAT-family filesystems).
+ * `verify: true` closes that gap at the cost of reading each file's footer.
+ */
+export function isStatUnchanged(file: StatFile, entry: LedgerEntry): boolean {
+  return file.size === entry.size && file.mtimeMs === entry.mtimeMs
+}
+
+/**
+ * Paths whose fingerprint the caller must compute before `planFiles`: new files (their fingerprint
+ * names their partials and goes into the ledger), files whose size or mtime differ from the ledger,
+ * and with `verify` every file in the ledger. Sorted by path.
+ */
+export function filesToFingerprint(
+  discovered: readonly StatFile[],
+  ledger: readonly LedgerEntry[],
+  options: FingerprintCheckOptions = {},
+): string[] {
+  const byPath = indexLedger(ledger)
+  const out: string[] = []
+  for (const f of discovered) {
+    const entry = byPath.get(f.path)
+    if (entry === undefined || options.verify === true || !isStatUnchanged(f, entry)) out.push(f.path)
+  }
+  return out.sort(comparePaths)
+}
+
+/**
+ * Classifies discovered files against the committed ledger.
+ *
+ * - not in the ledger → `new` (its fingerprint, if given, is carried along);
+ * - in the ledger with a fingerprint given → `unchanged` if equal to the ledger's, else `changed`.
+ *   An equal fingerprint with a new mtime (a `touch`) is unchanged; the caller records the new stat;
+ * - in the ledger without a fingerprint → `unchanged` if size and mtime match (`isStatUnchanged`),
+ *   else `changed` (content unknown, so re-read: the safe side);
+ * - in the ledger but not discovered → `deleted`.
+ *
+ * A renamed or moved file is a `deleted` old path plus a `new` path, even with identical bytes:
+ * Hive `name=value` folder segments are key columns, so a move can change the series of every row,
+ * and partials are attributed per path.
+ *
+ * Duplicate paths in `discovered` keep the first occurrence. Every output list is sorted by path.
+ */
+export function planFiles(
+  discovered: readonly StatFile[],
+  ledger: readonly LedgerEntry[],
+  fingerprints: ReadonlyMap<string, string> = new Map(),
+): FilePlan {
+  const byPath = indexLedger(ledger)
+  const seen = new Set<string>()
+  const added: PlannedFile[] = []
+  const changed: PlannedFile[] = []
+  const unchanged: PlannedFile[] = []
+  for (const f of discovered) {
+    if (seen.has(f.path)) continue
+    seen.add(f.path)
+    const entry = byPath.get(f.path) ?? null
+    const fp = fingerprints.get(f.path) ?? null
+    const base = { path: f.path, size: f.size, mtimeMs: f.mtimeMs }
+    if (entry === null) {
+      added.push({ ...base, fingerprint: fp, previous: null })
+    } else if (fp !== null) {
+      const target = fp === entry.fingerprint ? unchanged : changed
+      target.push({ ...base, fingerprint: fp, previous: entry })
+    } else if (isStatUnchanged(f, entry)) {
+      unchanged.push({ ...base, fingerprint: entry.fingerprint, previous: entry })
+    } else {
+      changed.push({ ...base, fingerprint: null, previous: entry })
+    }
+  }
+  const deleted = [...byPath.values()].filter((e) => !seen.has(e.path))
+  const byFile = (a: { path: string }, b: { path: string }): number => comparePaths(a.path, b.path)
+  return {
+    new: added.sort(byFile),
+    changed: changed.sort(byFile),
+    deleted: deleted.sort(byFile),
+    unchanged: unchanged.sort(byFile),
+  }
+}
+
+/** Code-unit order, the same in every locale (never `localeCompare`: runs must be reproducible). */
+export function comparePaths(a: string, b: string): number {
+  return a < b ? -1 : a > b ? 1 : 0
+}
+
+function indexLedger(ledger: readonly LedgerEntry[]): Map<string, LedgerEntry> {
+  const m = new Map<string, LedgerEntry>()
+  for (const e of ledger) if (!m.has(e.path)) m.set(e.path, e)
+  return m
+}

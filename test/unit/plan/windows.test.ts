@@ -1,0 +1,101 @@
+import { describe, expect, it } from 'vitest'
+import type { Moments } from '../../../src/kernel/moments.js'
+import { addRow, emptyMoments } from '../../../src/kernel/moments.js'
+import { parseWindow } from '../../../src/kernel/window.js'
+import { affectedWindows, sameMoments } from '../../../src/plan/windows.js'
+import type { PartialMoments } from '../../../src/types.js'
+
+const hourly = parseWindow('1h')
+const monthly = parseWindow('month', 'Europe/Berlin')
+if (hourly === null || monthly === null) throw new Error('window sizes must parse')
+const H = 3_600_000
+
+function moments(rows: readonly [number, number][]): Moments {
+  const m = emptyMoments(true)
+  for (const [x, y] of rows) addRow(m, x, y)
+  return m
+}
+
+const p = (file: string, site: string, windowStartMs: number, m: Moments): PartialMoments => ({
+  file,
+  key: [site, 'compressor-1'],
+  windowStartMs,
+  moments: m,
+})
+
+describe('affectedWindows', () => {
+  it('lists changed windows and the following k windows of the same series', () => {
+    const old = [p('/a', 'north', 10 * H, moments([[1, 2]]))]
+    const now = [p('/a', 'north', 10 * H, moments([[1, 3]]))]
+    const out = affectedWindows(old, now, 2, hourly)
+    expect(out.map((w) => [w.seriesId, w.windowStartMs, w.reason])).toEqual([
+      ['["north","compressor-1"]', 10 * H, 'moments'],
+      ['["north","compressor-1"]', 11 * H, 'baseline'],
+      ['["north","compressor-1"]', 12 * H, 'baseline'],
+    ])
+  })
+
+  it('ignores partials that are identical bit for bit', () => {
+    const same = [
+      p(
+        '/a',
+        'north',
+        10 * H,
+        moments([
+          [1, 2],
+          [2, 4],
+        ]),
+      ),
+    ]
+    const copy = [
+      p(
+        '/a',
+        'north',
+        10 * H,
+        moments([
+          [1, 2],
+          [2, 4],
+        ]),
+      ),
+    ]
+    expect(affectedWindows(same, copy, 1, hourly)).toEqual([])
+  })
+
+  it('includes windows of deleted and late files, keeping moments over baseline', () => {
+    const old = [p('/gone', 'south', 3 * H, moments([[0, 1]]))]
+    const now = [p('/late', 'south', 2 * H, moments([[0, 5]])), p('/late', 'east', 7 * H, moments([[0, 1]]))]
+    const out = affectedWindows(old, now, 1, hourly)
+    expect(out.map((w) => [w.key[0], w.windowStartMs, w.reason])).toEqual([
+      ['east', 7 * H, 'moments'],
+      ['east', 8 * H, 'baseline'],
+      ['south', 2 * H, 'moments'],
+      ['south', 3 * H, 'moments'],
+      ['south', 4 * H, 'baseline'],
+    ])
+  })
+
+  it('steps calendar windows by their own length across a DST change', () => {
+    // 2026-03-01 00:00 Europe/Berlin = 2026-02-28T23:00Z; March has the spring-forward day.
+    const march = Date.UTC(2026, 1, 28, 23)
+    const out = affectedWindows([], [p('/a', 'north', march, moments([[0, 1]]))], 2, monthly)
+    expect(out.map((w) => new Date(w.windowStartMs).toISOString())).toEqual([
+      '2026-02-28T23:00:00.000Z',
+      '2026-03-31T22:00:00.000Z',
+      '2026-04-30T22:00:00.000Z',
+    ])
+  })
+
+  it('adds no following windows when baselineWindows is 0', () => {
+    expect(affectedWindows([], [p('/a', 'north', 0, moments([[0, 1]]))], 0, hourly)).toHaveLength(1)
+  })
+})
+
+describe('sameMoments', () => {
+  it('tells apart a lag block from none and -0 from 0', () => {
+    const a = moments([[1, 2]])
+    expect(sameMoments(a, { ...a, lag: null })).toBe(false)
+    expect(sameMoments({ ...a, lag: null }, { ...a, lag: null })).toBe(true)
+    expect(sameMoments({ ...a, sxy: 0 }, { ...a, sxy: -0 })).toBe(false)
+    expect(sameMoments(a, moments([[1, 2]]))).toBe(true)
+  })
+})
