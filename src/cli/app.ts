@@ -1,0 +1,31 @@
+/**
+ * The yargs command tree. Thin: each command validates flags, loads the config and hands over to
+ * a function in `commands/`. yargs runs strict, never exits the process, and its failures become
+ * UsageError (exit 64).
+ */
+import yargs, { type Argv } from 'yargs'
+import { UsageError } from '../errors.js'
+import { checkConfigCommand } from './commands/check-config.js'
+import { demoCommand } from './commands/demo.js'
+import { runCommand } from './commands/run.js'
+import type { CliDeps } from './deps.js'
+
+/** Builds the CLI for `argv` (without node and script). */
+export function buildCli(argv: readonly string[], deps: CliDeps): Argv {
+  return yargs([...argv])
+    .scriptName('slopeshift')
+    .usage('$0 <command> [options]\n\nPer-series trend lines per time window, and alerts when a trend shifts.')
+    .command(runCommand(deps))
+    .command(checkConfigCommand(deps))
+    .command(demoCommand(deps))
+    .demandCommand(1, 'name a command, e.g. `slopeshift run --config job.yaml`')
+    .strict()
+    .exitProcess(false)
+    .fail((msg, err) => {
+      if (err) throw err
+      throw new UsageError(`${msg}; see slopeshift --help`)
+    })
+    .help()
+    .version()
+    .wrap(Math.min(120, process.stdout.columns ?? 100))
+}

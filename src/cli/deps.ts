@@ -1,0 +1,13 @@
+import type { Logger } from '../log.js'
+
+/** What every command gets from `main.ts`: no command creates its own logger, clock or signal. */
+export interface CliDeps {
+  readonly log: Logger
+  /** Writes one chunk of machine-readable output to stdout. */
+  readonly stdout: (text: string) => void
+  /** Aborted on SIGINT/SIGTERM; its `reason` is the signal name. */
+  readonly signal: AbortSignal
+  readonly now: () => number
+  /** True when stderr is a terminal (progress bar allowed). */
+  readonly isTty: boolean
+}

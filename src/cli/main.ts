@@ -1,0 +1,46 @@
+#!/usr/bin/env node
+/**
+ * The slopeshift binary. Parses argv, builds the deps (logger, signal, clock), runs one command
+ * and maps errors to BSD sysexits codes (style.md 4.3). The only file that sets the exit code.
+ */
+import { ExitCode, exitCodeOf, SlopeshiftError, StoppedError } from '../errors.js'
+import { createLogger } from '../log.js'
+import { buildCli } from './app.js'
+import type { CliDeps } from './deps.js'
+
+async function main(argv: readonly string[]): Promise<void> {
+  const log = createLogger({ level: process.env.SLOPESHIFT_LOG_LEVEL ?? 'info' })
+  const controller = new AbortController()
+  const onSignal = (signal: 'SIGINT' | 'SIGTERM') => {
+    if (controller.signal.aborted) {
+      log.fatal({ signal }, 'second signal received, exiting now')
+      process.exit(signal === 'SIGINT' ? ExitCode.sigint : ExitCode.sigterm)
+    }
+    log.warn({ signal }, 'stop requested, finishing the current file')
+    controller.abort(signal)
+  }
+  process.on('SIGINT', () => onSignal('SIGINT'))
+  process.on('SIGTERM', () => onSignal('SIGTERM'))
+  const deps: CliDeps = {
+    log,
+    stdout: (text) => process.stdout.write(text),
+    signal: controller.signal,
+    now: Date.now,
+    isTty: process.stderr.isTTY === true,
+  }
+  try {
+    await buildCli(argv, deps).parseAsync()
+  } catch (err) {
+    const stopped = controller.signal.aborted && !(err instanceof SlopeshiftError && err.exitCode !== ExitCode.software)
+    const final = stopped ? new StoppedError(controller.signal.reason === 'SIGINT' ? 'SIGINT' : 'SIGTERM') : err
+    const code = exitCodeOf(final)
+    if (final instanceof SlopeshiftError) {
+      log.fatal({ err: final, code: final.code, exitCode: code, ...final.context }, final.message)
+    } else {
+      log.fatal({ err: final, exitCode: code }, 'unexpected error (a bug): please report it with this log line')
+    }
+    process.exitCode = code
+  }
+}
+
+await main(process.argv.slice(2))

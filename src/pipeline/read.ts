@@ -1,0 +1,66 @@
+/**
+ * Reads partial moments from a set of files: all Parquet files in one DuckDB scan, Arrow IPC
+ * files one at a time through our kernel. Checks the abort signal between files.
+ */
+
+import { readArrowPartials } from '../dataset/arrow.js'
+import { readParquetPartials } from '../dataset/parquet.js'
+import type { Logger } from '../log.js'
+import type { MomentsPlan, PartialMoments, ReadStats, SourceFile } from '../types.js'
+
+export interface ReadOptions {
+  readonly threads: number
+  readonly memoryLimit: string
+  readonly signal?: AbortSignal
+  readonly log: Logger
+  /** Called with the running total of rows read, at least once per file. */
+  readonly onRows?: (rows: number) => void
+}
+
+export interface ReadResult {
+  readonly partials: PartialMoments[]
+  readonly stats: ReadStats[]
+}
+
+/** Reads every file; result order is deterministic (by file, series, window). */
+export async function readPartials(
+  files: readonly SourceFile[],
+  plan: MomentsPlan,
+  options: ReadOptions,
+): Promise<ReadResult> {
+  const partials: PartialMoments[] = []
+  const stats: ReadStats[] = []
+  let rows = 0
+  const parquet = files.filter((f) => f.kind === 'parquet')
+  const arrow = files.filter((f) => f.kind !== 'parquet')
+  if (parquet.length > 0) {
+    const started = performance.now()
+    const r = await readParquetPartials(parquet, plan, {
+      threads: options.threads,
+      memoryLimit: options.memoryLimit,
+      ...(options.signal ? { signal: options.signal } : {}),
+    })
+    partials.push(...r.partials)
+    stats.push(...r.stats)
+    for (const s of r.stats) rows += s.rows
+    options.onRows?.(rows)
+    options.log.info(
+      { files: parquet.length, rows, partials: r.partials.length, durationMs: Math.round(performance.now() - started) },
+      'parquet files read',
+    )
+  }
+  for (const file of arrow) {
+    options.signal?.throwIfAborted()
+    const before = rows
+    const r = await readArrowPartials(file, plan, {
+      ...(options.signal ? { signal: options.signal } : {}),
+      onProgress: (n) => options.onRows?.(before + n),
+    })
+    partials.push(...r.partials)
+    stats.push(r.stats)
+    rows += r.stats.rows
+    options.onRows?.(rows)
+    options.log.debug({ file: file.path, rows: r.stats.rows, skipped: r.stats.skipped }, 'arrow file read')
+  }
+  return { partials, stats }
+}
