@@ -10,4 +10,6 @@ export interface CliDeps {
   readonly now: () => number
   /** True when stderr is a terminal (progress bar allowed). */
   readonly isTty: boolean
+  /** Sets the process exit code for a successful command that must still signal something (e.g. `--fail-on-shift`). */
+  readonly setExitCode: (code: number) => void
 }

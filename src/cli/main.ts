@@ -27,6 +27,9 @@ async function main(argv: readonly string[]): Promise<void> {
     signal: controller.signal,
     now: Date.now,
     isTty: process.stderr.isTTY === true,
+    setExitCode: (code) => {
+      process.exitCode = code
+    },
   }
   try {
     await buildCli(argv, deps).parseAsync()

@@ -1,0 +1,21 @@
+# slopeshift worker image: Node 20 on Debian (glibc, for the DuckDB prebuilt binary).
+FROM node:20-bookworm-slim AS build
+WORKDIR /app
+COPY package.json package-lock.json ./
+RUN npm ci --ignore-scripts
+COPY tsconfig.json tsconfig.build.json ./
+COPY src ./src
+RUN npm run build && npm prune --omit=dev
+
+FROM node:20-bookworm-slim
+ENV NODE_ENV=production
+WORKDIR /app
+COPY --from=build /app/node_modules ./node_modules
+COPY --from=build /app/dist ./dist
+COPY package.json ./
+COPY schemas ./schemas
+COPY config ./config
+USER node
+# Exec form: signals reach node directly, so SIGTERM stops a run cleanly (exit 143).
+ENTRYPOINT ["node", "dist/cli/main.js"]
+CMD ["--help"]
