@@ -1,0 +1,340 @@
+/**
+ * Arrow IPC → partial moments per (file, series, window) (design.md, "Arrow IPC → moments: our own
+ * kernel"). Reads one record batch at a time through apache-arrow's `RecordBatchReader` (file and
+ * stream formats, detected by magic bytes; LZ4 and ZSTD bodies through registered codecs), turns
+ * each batch's columns into typed arrays and feeds the kernel hot loop. Memory grows with
+ * series × windows, never with rows.
+ */
+import { type FileHandle, open } from 'node:fs/promises'
+import { basename } from 'node:path'
+import { type Data, type DataType, type RecordBatch, RecordBatchReader, type Schema } from 'apache-arrow'
+import { DataError, NoInputError } from '../errors.js'
+import { accumulateRows, MomentSlots, slotMoments } from '../kernel/accumulate.js'
+import { KeyValueIds } from '../kernel/key-intern.js'
+import { invalidMomentsReason } from '../kernel/moments.js'
+import { SlotIndex } from '../kernel/slot-index.js'
+import { WindowCursor } from '../kernel/window-x.js'
+import {
+  type MomentsPlan,
+  type PartialMoments,
+  type ReadStats,
+  type SeriesKey,
+  type SourceFile,
+  seriesId,
+} from '../types.js'
+import {
+  isNumericType,
+  KeyColumnReader,
+  placeTimes,
+  Scratch,
+  type TimeLayout,
+  timeLayoutOf,
+  toNumbers,
+} from './arrow-columns.js'
+import { registerArrowCodecs } from './codecs.js'
+
+/** Options of `readArrowPartials`. */
+export interface ArrowReadOptions {
+  /** Checked between record batches; an aborted signal stops the read with its reason. */
+  readonly signal?: AbortSignal
+  /** Called after each record batch with the number of rows read so far. */
+  readonly onProgress?: (rowsSoFar: number) => void
+}
+
+/** Result of reading one Arrow IPC file. */
+export interface ArrowPartials {
+  /** One entry per (series, window) seen, sorted by series id, then window start. */
+  readonly partials: PartialMoments[]
+  readonly stats: ReadStats
+}
+
+/**
+ * Reads one Arrow IPC file (file or stream format) and returns its partial moments per (series,
+ * window) plus row counters.
+ *
+ * - Keys: dictionary columns are remapped once per dictionary, Utf8 columns are hashed on their
+ *   bytes; a key missing from the file but present in `file.hive` is constant for the file.
+ *   Values become strings (`String(v)` for numbers); null stays null.
+ * - x: Timestamp (s/ms/us/ns), Date32/Date64, or an integer/float epoch column in
+ *   `plan.x.epochUnit`, made window-relative with integer arithmetic (statistics.md §1.2).
+ * - Validation (statistics.md §1.8): rows with null/non-finite y or x, or (weighted) a weight that
+ *   is not finite and > 0, are skipped and counted per (series, window) and in `stats.skipped`;
+ *   a null time has no window and counts only in `stats.skipped`.
+ * - A file with zero rows gives no partials. Output order is deterministic.
+ *
+ * @throws NoInputError when a configured column is missing (the message lists the file's columns
+ *   and the config key to fix); DataError for a column of the wrong type, an empty (0-byte),
+ *   truncated or corrupt file, or a non-finite state (naming the file and series).
+ */
+export async function readArrowPartials(
+  file: SourceFile,
+  plan: MomentsPlan,
+  options: ArrowReadOptions = {},
+): Promise<ArrowPartials> {
+  registerArrowCodecs()
+  const stats: ReadStats = { file: file.path, rows: 0, skipped: 0 }
+  const name = basename(file.path)
+  let handle: FileHandle | null = null
+  try {
+    options.signal?.throwIfAborted()
+    handle = await open(file.path, 'r')
+    const { size } = await handle.stat()
+    if (size === 0) {
+      throw new DataError(`${name} is empty (0 bytes), not an Arrow IPC file; remove it or rewrite it`, {
+        context: { file: file.path },
+      })
+    }
+    const reader = await openReader(handle, file.path)
+    const schema = reader.schema as Schema | null | undefined
+    if (schema === null || schema === undefined || schema.fields.length === 0) {
+      throw corrupt(file.path, 'no schema found')
+    }
+    const acc = new FileAccumulator(file, plan, schema)
+    for (;;) {
+      let next: IteratorResult<RecordBatch>
+      try {
+        next = await reader.next()
+      } catch (err) {
+        throw corrupt(file.path, err)
+      }
+      if (next.done === true) break
+      options.signal?.throwIfAborted()
+      const batch = next.value
+      stats.skipped += acc.add(batch)
+      stats.rows += batch.numRows
+      options.onProgress?.(stats.rows)
+    }
+    return { partials: acc.finish(), stats }
+  } finally {
+    if (handle !== null) await closeQuietly(handle)
+  }
+}
+
+async function openReader(handle: FileHandle, path: string): Promise<RecordBatchReader> {
+  try {
+    const reader = await RecordBatchReader.from(handle)
+    await reader.open()
+    return reader
+  } catch (err) {
+    throw corrupt(path, err)
+  }
+}
+
+/** apache-arrow closes the handle itself at the end of the file; a second close may then fail. */
+async function closeQuietly(handle: FileHandle): Promise<void> {
+  try {
+    await handle.close()
+  } catch {
+    // already closed by the reader: nothing to release
+  }
+}
+
+function corrupt(path: string, cause: unknown): DataError {
+  const why = cause instanceof Error ? cause.message : String(cause)
+  return new DataError(
+    `${basename(path)} is not a readable Arrow IPC file (truncated or corrupt: ${why}); rewrite or remove it`,
+    { context: { file: path }, cause },
+  )
+}
+
+type KeySource =
+  | { readonly kind: 'column'; readonly index: number }
+  | { readonly kind: 'constant'; readonly value: string }
+
+/** Column positions and decoders of one file, checked against the plan once (from the schema). */
+interface FileLayout {
+  readonly keys: readonly KeySource[]
+  readonly x: { readonly index: number; readonly layout: TimeLayout }
+  readonly y: number
+  readonly weight: number | null
+}
+
+function layoutOf(file: SourceFile, plan: MomentsPlan, schema: Schema): FileLayout {
+  const names = schema.fields.map((f) => f.name)
+  const name = basename(file.path)
+  const indexOf = (column: string, configKey: string): number => {
+    const i = names.indexOf(column)
+    if (i < 0) {
+      throw new NoInputError(
+        `column "${column}" not found in ${name} (has: ${names.join(', ')}); set ${configKey} in the config`,
+        { context: { file: file.path, column } },
+      )
+    }
+    return i
+  }
+  const wrongType = (column: string, type: DataType | undefined, expected: string, configKey: string): DataError =>
+    new DataError(
+      `column "${column}" in ${name} has type ${type === undefined ? 'unknown' : String(type)}, expected ${expected}; fix the file or set ${configKey} in the config`,
+      { context: { file: file.path, column } },
+    )
+  const keys = plan.keys.map((k): KeySource => {
+    if (!names.includes(k)) {
+      const hive = file.hive[k]
+      if (hive !== undefined) return { kind: 'constant', value: hive }
+    }
+    return { kind: 'column', index: indexOf(k, 'source.keys') }
+  })
+  const xIndex = indexOf(plan.x.column, 'source.x.column')
+  const xField = schema.fields[xIndex]
+  const layout = xField === undefined ? ({ kind: 'unsupported' } as const) : timeLayoutOf(xField, plan.x.epochUnit)
+  if (xField === undefined || layout.kind === 'unsupported') {
+    throw wrongType(plan.x.column, xField?.type, 'a timestamp, date, or integer/float epoch', 'source.x.column')
+  }
+  const numeric = (column: string, configKey: string): number => {
+    const i = indexOf(column, configKey)
+    const t = schema.fields[i]?.type
+    if (t === undefined || !isNumericType(t)) {
+      throw wrongType(column, t, 'a number (int, float or decimal)', configKey)
+    }
+    return i
+  }
+  return {
+    keys,
+    x: { index: xIndex, layout },
+    y: numeric(plan.y.column, 'source.y.column'),
+    weight: plan.weight === null ? null : numeric(plan.weight.column, 'source.weight.column'),
+  }
+}
+
+/** Accumulates the batches of one file. */
+class FileAccumulator {
+  private readonly file: SourceFile
+  private readonly layout: FileLayout
+  private readonly slots: MomentSlots
+  private readonly index: SlotIndex
+  private readonly cursor: WindowCursor
+  private readonly scratch = new Scratch()
+  /** Per key position: value ids (columns only). */
+  private readonly keyIds: (KeyValueIds | null)[]
+  private readonly keyReaders: (KeyColumnReader | null)[]
+  /** Key column positions that vary by row. */
+  private readonly varying: number[]
+  /** Single varying key: value id → series id (−1 = not yet). */
+  private seriesOfValue = new Int32Array(64).fill(-1)
+  /** Several varying keys: combined id → series id. */
+  private readonly seriesOfTuple = new Map<string, number>()
+  private readonly seriesKeys: SeriesKey[] = []
+
+  constructor(file: SourceFile, plan: MomentsPlan, schema: Schema) {
+    this.file = file
+    this.layout = layoutOf(file, plan, schema)
+    this.slots = new MomentSlots({ weighted: plan.weight !== null, trackLag: plan.trackLag })
+    this.index = new SlotIndex(this.slots)
+    this.cursor = new WindowCursor(
+      plan.window,
+      plan.xUnit,
+      this.layout.x.layout.kind === 'unsupported' ? 'ms' : this.layout.x.layout.tick,
+    )
+    this.keyIds = this.layout.keys.map((k) => (k.kind === 'column' ? new KeyValueIds() : null))
+    this.keyReaders = this.keyIds.map((ids) => (ids === null ? null : new KeyColumnReader(ids)))
+    this.varying = this.layout.keys.flatMap((k, i) => (k.kind === 'column' ? [i] : []))
+  }
+
+  /** Adds one record batch; returns the rows skipped (no window, or rejected by validation). */
+  add(batch: RecordBatch): number {
+    const length = batch.numRows
+    if (length === 0) return 0
+    const column = (i: number): Data => {
+      const d = batch.data.children[i]
+      if (d === undefined) throw corrupt(this.file.path, `column ${i} missing from a record batch`)
+      return d
+    }
+    const s = this.scratch
+    const series = s.int(0, length)
+    this.seriesOf(column, series, length)
+    const window = s.int(1, length)
+    const x = s.float(0, length)
+    const unplaced = placeTimes(column(this.layout.x.index), this.layout.x.layout, this.cursor, s, window, x)
+    const slot = s.int(2, length)
+    this.index.assign(length, series, window, slot)
+    const y = toNumbers(column(this.layout.y), s, 1)
+    const weight = this.layout.weight === null ? null : toNumbers(column(this.layout.weight), s, 2)
+    const rejected = accumulateRows(this.slots, { length, slot, x, y, weight })
+    return unplaced + rejected
+  }
+
+  private seriesOf(column: (i: number) => Data, out: Int32Array, length: number): void {
+    if (this.varying.length === 0) {
+      const id = this.seriesFor([])
+      out.fill(id, 0, length)
+      return
+    }
+    const valueIds = this.varying.map((pos, j) => {
+      const src = this.layout.keys[pos]
+      const reader = this.keyReaders[pos]
+      if (src?.kind !== 'column' || reader === null || reader === undefined) throw new Error('key layout mismatch')
+      const ids = this.scratch.int(3 + j, length)
+      reader.read(column(src.index), ids)
+      return ids
+    })
+    if (valueIds.length === 1) {
+      const ids = valueIds[0] as Int32Array
+      for (let i = 0; i < length; i++) {
+        const v = ids[i] as number
+        let sid = v < this.seriesOfValue.length ? (this.seriesOfValue[v] as number) : -1
+        if (sid < 0) sid = this.newSingleSeries(v)
+        out[i] = sid
+      }
+    } else {
+      const tuple: number[] = new Array<number>(valueIds.length)
+      for (let i = 0; i < length; i++) {
+        for (let j = 0; j < valueIds.length; j++) tuple[j] = (valueIds[j] as Int32Array)[i] as number
+        const k = tuple.join(',')
+        let sid = this.seriesOfTuple.get(k)
+        if (sid === undefined) {
+          sid = this.seriesFor(tuple)
+          this.seriesOfTuple.set(k, sid)
+        }
+        out[i] = sid
+      }
+    }
+    this.index.reserveSeries(this.seriesKeys.length)
+  }
+
+  private newSingleSeries(valueId: number): number {
+    if (valueId >= this.seriesOfValue.length) {
+      let capacity = this.seriesOfValue.length
+      while (capacity <= valueId) capacity *= 2
+      const next = new Int32Array(capacity).fill(-1)
+      next.set(this.seriesOfValue)
+      this.seriesOfValue = next
+    }
+    const sid = this.seriesFor([valueId])
+    this.seriesOfValue[valueId] = sid
+    return sid
+  }
+
+  /** Registers a series from the value ids of the varying key columns (in `varying` order). */
+  private seriesFor(valueIds: readonly number[]): number {
+    let j = 0
+    const key = this.layout.keys.map((k, pos) => {
+      if (k.kind === 'constant') return k.value
+      const ids = this.keyIds[pos]
+      const v = valueIds[j++]
+      if (ids === null || ids === undefined || v === undefined) throw new Error('key layout mismatch')
+      return ids.value(v)
+    })
+    this.seriesKeys.push(key)
+    return this.seriesKeys.length - 1
+  }
+
+  /** Partial moments of every (series, window), checked finite, sorted by series id then window start. */
+  finish(): PartialMoments[] {
+    const out: { id: string; p: PartialMoments }[] = []
+    for (let k = 0; k < this.slots.size; k++) {
+      const key = this.seriesKeys[this.index.seriesOfSlot[k] as number] as SeriesKey
+      const windowStartMs = this.cursor.windowStartMs[this.index.windowOfSlot[k] as number] as number
+      const moments = slotMoments(this.slots, k)
+      const reason = invalidMomentsReason(moments)
+      if (reason !== null) {
+        throw new DataError(
+          `moments of series ${seriesId(key)} in window ${new Date(windowStartMs).toISOString()} from ${basename(this.file.path)} are not valid (${reason}); check the file for values beyond ±1e154`,
+          { context: { file: this.file.path, key: seriesId(key) } },
+        )
+      }
+      out.push({ id: seriesId(key), p: { file: this.file.path, key, windowStartMs, moments } })
+    }
+    out.sort((a, b) => (a.id < b.id ? -1 : a.id > b.id ? 1 : a.p.windowStartMs - b.p.windowStartMs))
+    return out.map((e) => e.p)
+  }
+}

@@ -1,0 +1,68 @@
+/**
+ * Body-compression codecs for Arrow IPC: apache-arrow 21 decodes LZ4_FRAME and ZSTD buffers only
+ * through codecs registered in its `compressionRegistry`; Node 20 has neither, so we plug in the
+ * pure-JS `lz4js` (frame format) and `fzstd` decoders (io-evaluation.md, Arrow IPC and Gotchas).
+ */
+import { createRequire } from 'node:module'
+import { CompressionType, compressionRegistry } from 'apache-arrow'
+import { decompress as zstdDecompress } from 'fzstd'
+
+interface Lz4js {
+  decompress(src: Uint8Array, maxSize?: number): Uint8Array
+  compress(src: Uint8Array, maxSize?: number): Uint8Array
+}
+
+function isLz4js(m: unknown): m is Lz4js {
+  return (
+    typeof m === 'object' &&
+    m !== null &&
+    typeof (m as { decompress?: unknown }).decompress === 'function' &&
+    typeof (m as { compress?: unknown }).compress === 'function'
+  )
+}
+
+/** lz4js ships CommonJS without types; load it once and check its shape instead of trusting `any`. */
+function loadLz4js(): Lz4js {
+  const m: unknown = createRequire(import.meta.url)('lz4js')
+  if (!isLz4js(m)) throw new TypeError('lz4js does not export compress/decompress')
+  return m
+}
+
+/** The lz4js module (LZ4 frame format), also used by test fixtures to write LZ4 bodies. */
+export const lz4 = loadLz4js()
+
+/**
+ * Returns `bytes` when its start is 8-byte aligned, else a copy. fzstd returns views at
+ * `byteOffset % 8 == 4`, and apache-arrow then fails to build a BigInt64Array on them
+ * (io-evaluation.md, Gotchas: "start offset of BigInt64Array should be a multiple of 8").
+ */
+export function aligned8(bytes: Uint8Array): Uint8Array {
+  return bytes.byteOffset % 8 === 0 ? bytes : bytes.slice()
+}
+
+/** Decodes one LZ4-frame-compressed IPC body buffer. */
+export function decodeLz4Frame(data: Uint8Array): Uint8Array {
+  return aligned8(lz4.decompress(data))
+}
+
+/** Decodes one ZSTD-compressed IPC body buffer. */
+export function decodeZstd(data: Uint8Array): Uint8Array {
+  return aligned8(zstdDecompress(data))
+}
+
+/**
+ * Registers the LZ4_FRAME and ZSTD decoders with apache-arrow's global `compressionRegistry`.
+ * Idempotent and cheap; an encoder someone registered for the same type (test fixtures that
+ * write compressed files) is kept.
+ */
+export function registerArrowCodecs(): void {
+  register(CompressionType.LZ4_FRAME, decodeLz4Frame)
+  register(CompressionType.ZSTD, decodeZstd)
+}
+
+function register(type: CompressionType, decode: (data: Uint8Array) => Uint8Array): void {
+  const current = compressionRegistry.get(type)
+  if (current?.decode === decode) return
+  // keep an existing encoder; the registry re-validates it by encoding a test buffer
+  compressionRegistry.set(type, current?.encode ? { encode: current.encode, decode } : { decode })
+}
