@@ -217,6 +217,18 @@ export function commonSlopeBaseline(
 }
 
 /**
+ * Shifts window states onto one origin (`offsets[j]` x units added to window j, statistics.md §1.2)
+ * and merges them in the given order (§1.4: a fixed order keeps reruns bit-identical). Needs k ≥ 1.
+ */
+export function mergeOnOrigin(windows: readonly Moments[], offsets: readonly number[]): Moments {
+  let merged = shiftOrigin(windows[0] as Moments, offsets[0] ?? 0)
+  for (let j = 1; j < windows.length; j++) {
+    merged = mergeMoments(merged, shiftOrigin(windows[j] as Moments, offsets[j] ?? 0))
+  }
+  return merged
+}
+
+/**
  * Merged-line baseline (statistics.md §3.5, method 2): the k states are shifted onto one origin by
  * `offsets[j]` (x units to add to window j, e.g. (start_j − start_0)/unit), merged in the given order
  * (fix it for bit-identical reruns, §1.4), and fitted as one line with `df = N − 2`. A level jump
@@ -230,12 +242,7 @@ export function mergedLineBaseline(
 ): Baseline | null {
   const k = windows.length
   if (k === 0) return null
-  let merged: Moments | null = null
-  for (let j = 0; j < k; j++) {
-    const s = shiftOrigin(windows[j] as Moments, offsets[j] ?? 0)
-    merged = merged === null ? s : mergeMoments(merged, s)
-  }
-  const m = merged as Moments
+  const m = mergeOnOrigin(windows, offsets)
   const slope = m.syy === 0 ? 0 : m.sxy / m.sxx
   const rss = residualSum(m)
   const df = (weights === 'frequency' ? m.wSum : m.n) - 2
