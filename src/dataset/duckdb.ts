@@ -1,0 +1,73 @@
+/**
+ * A small wrapper around one embedded DuckDB instance and connection (`@duckdb/node-api`), the engine
+ * design.md picks for Parquet → moments and for writing Parquet. It fixes the settings every caller
+ * needs: thread count and memory limit from options, session time zone UTC (so no cast depends on the
+ * host's zone), and no extension auto-install (the worker runs offline; ICU and Parquet are built in).
+ */
+import { type DuckDBConnection, DuckDBInstance, type DuckDBMaterializedResult } from '@duckdb/node-api'
+
+export interface DuckDbOptions {
+  /** Worker threads DuckDB may use (≥ 1). */
+  readonly threads: number
+  /** DuckDB memory limit such as `512MB` or `2GiB` (default: DuckDB's own, 80% of RAM). */
+  readonly memoryLimit?: string
+}
+
+/** One open instance + connection. Close it when done; `close()` is idempotent. */
+export interface DuckDbSession {
+  readonly connection: DuckDBConnection
+  /** Runs one statement and returns the fully materialized result. */
+  run(sql: string): Promise<DuckDBMaterializedResult>
+  /** Asks the running query to stop; it then rejects with an "interrupted" error. */
+  interrupt(): void
+  close(): void
+}
+
+/**
+ * Creates an in-memory DuckDB instance with `threads` and `memory_limit` set, and one connection.
+ * Throws a RangeError when `threads` is not a positive integer (a caller bug, not a data problem).
+ */
+export async function openDuckDb(options: DuckDbOptions): Promise<DuckDbSession> {
+  if (!Number.isInteger(options.threads) || options.threads < 1) {
+    throw new RangeError(`threads must be a positive integer, got ${options.threads}`)
+  }
+  const config: Record<string, string> = {
+    threads: String(options.threads),
+    autoinstall_known_extensions: 'false',
+    autoload_known_extensions: 'false',
+  }
+  if (options.memoryLimit !== undefined) config.memory_limit = options.memoryLimit
+  const instance = await DuckDBInstance.create(':memory:', config)
+  let connection: DuckDBConnection
+  try {
+    connection = await instance.connect()
+    await connection.run("SET TimeZone = 'UTC'")
+  } catch (err) {
+    instance.closeSync()
+    throw err
+  }
+  let closed = false
+  return {
+    connection,
+    run: (sql) => connection.run(sql),
+    interrupt: () => {
+      if (!closed) connection.interrupt()
+    },
+    close: () => {
+      if (closed) return
+      closed = true
+      connection.closeSync()
+      instance.closeSync()
+    },
+  }
+}
+
+/** Opens a session, runs `fn` with it, and always closes it. */
+export async function withDuckDb<T>(options: DuckDbOptions, fn: (db: DuckDbSession) => Promise<T>): Promise<T> {
+  const db = await openDuckDb(options)
+  try {
+    return await fn(db)
+  } finally {
+    db.close()
+  }
+}

@@ -1,0 +1,442 @@
+/**
+ * The one SQL generator for partial moments (design.md "Engines and libraries"; statistics.md §1.7):
+ * the Parquet reader runs its DuckDB output in the embedded engine, and `slopeshift sql` prints the
+ * same query for a distributed engine. Pure: builds text, runs nothing.
+ *
+ * Query shape, per (file, series key, window):
+ * 1. project only the needed columns; turn the timestamp into integer ticks (ms/µs/ns) before any
+ *    floating-point step (§1.2); numeric epoch columns stay as they are;
+ * 2. window start in epoch ms with integer arithmetic (fixed windows: floor division, aligned to the
+ *    epoch; calendar windows: `date_trunc` in the configured zone, ICU in DuckDB);
+ * 3. x = (ticks − window start) as DOUBLE / ticks per x unit; rows with a null or non-finite y (or an
+ *    invalid weight) get x = y = NULL so the `REGR_*` aggregates skip them and `points_skipped` counts
+ *    them (§1.8);
+ * 4. `REGR_COUNT/AVGX/AVGY/SXX/SYY/SXY(y, x)`, `MIN(x)`, `MAX(x)`; with the lag block, `LAG()` over the
+ *    rows in arrival order and `REGR_*` over the pairs (§1.7, §5.2); weighted: two-pass shifted sums.
+ *
+ * Rows whose timestamp is null or not finite land in a group with `window_start_ms` NULL, n = 0: they
+ * count for the file only.
+ */
+import { msPerXUnit } from '../kernel/window.js'
+import type { MomentsPlan } from '../types.js'
+
+export type SqlDialect = 'duckdb' | 'postgres' | 'ansi'
+
+/** How the x column is stored in the source. */
+export type XStorage =
+  /**
+   * A timestamp type. `ticks` is the integer unit the engine extracts without loss: DuckDB uses
+   * `epoch_ms/epoch_us/epoch_ns` accordingly (use `ns` for TIMESTAMP_NS). PostgreSQL and ansi always
+   * use µs (`EXTRACT(EPOCH FROM ts)`), their timestamp precision.
+   */
+  | { readonly kind: 'timestamp'; readonly ticks: 'ms' | 'us' | 'ns' }
+  /** A number of `plan.x.epochUnit` since the Unix epoch; `integer` false allows fractions (DOUBLE). */
+  | { readonly kind: 'epoch'; readonly integer: boolean }
+
+/** Where the rows come from. */
+export type SqlSource =
+  | {
+      /** Parquet files scanned by DuckDB's `read_parquet` (duckdb dialect only), grouped by file name. */
+      readonly kind: 'parquet'
+      readonly files: readonly string[]
+      readonly x: XStorage
+      /**
+       * Key columns whose value is constant per file and filled in by the caller (Hive folder
+       * segments known from discovery). They are left out of the query, which then scans with
+       * `hive_partitioning = false`. When absent, DuckDB derives Hive columns from the paths itself
+       * (`hive_partitioning = true`, values kept as text).
+       */
+      readonly fileKeys?: readonly string[]
+    }
+  | {
+      /** A table or view whose column names are those of the plan. Dotted names are quoted per part. */
+      readonly kind: 'table'
+      readonly table: string
+      readonly x: XStorage
+      /** Column that identifies the input partition (becomes `file`); default: the table name as text. */
+      readonly fileColumn?: string
+      /** Tie-breaker after the timestamp for the lag block's row order (tables have no arrival order). */
+      readonly orderColumn?: string
+    }
+
+/** The output columns, in order, of the moments query (`keys` are the key columns the SQL groups by). */
+export interface MomentsQuery {
+  readonly sql: string
+  /** Key columns the query outputs (plan.keys minus `fileKeys`), in plan order. */
+  readonly keys: readonly string[]
+  readonly columns: readonly string[]
+}
+
+/** Moments columns after `file`, keys and `window_start_ms`. */
+export const momentColumns = [
+  'n',
+  'w_sum',
+  'x_mean',
+  'y_mean',
+  'sxx',
+  'syy',
+  'sxy',
+  'x_min',
+  'x_max',
+  'points_skipped',
+] as const
+
+/** Lag-block columns (statistics.md §5.2), present when `plan.trackLag` and unweighted. */
+export const lagColumns = [
+  'pairs',
+  'cur_x_mean',
+  'cur_y_mean',
+  'prev_x_mean',
+  'prev_y_mean',
+  'c_yy1',
+  'c_yx1',
+  'c_xy1',
+  'c_xx1',
+  'first_x',
+  'first_y',
+  'last_x',
+  'last_y',
+  'out_of_order',
+] as const
+
+/** Quotes an SQL identifier (standard double quotes; embedded quotes doubled). */
+export function quoteIdent(name: string): string {
+  return `"${name.replaceAll('"', '""')}"`
+}
+
+/** Quotes an SQL string literal (single quotes; embedded quotes doubled). */
+export function quoteString(text: string): string {
+  return `'${text.replaceAll("'", "''")}'`
+}
+
+/**
+ * The full moments query as printed by `slopeshift sql`: a header comment, the query, and
+ * `ORDER BY file, keys, window_start_ms`. Output columns: `file`, the key columns, `window_start_ms`
+ * (epoch ms, BIGINT), `n, w_sum, x_mean, y_mean, sxx, syy, sxy, x_min, x_max, points_skipped`, and
+ * with the lag block `pairs … out_of_order` (see `lagColumns`). `in_order` is `out_of_order = 0`.
+ * Throws a RangeError for a combination no dialect can express (Parquet source outside DuckDB).
+ */
+export function momentsSql(plan: MomentsPlan, source: SqlSource, dialect: SqlDialect): string {
+  const q = momentsQuery(plan, source, dialect)
+  const order = Array.from({ length: q.keys.length + 2 }, (_, i) => String(i + 1)).join(', ')
+  return `${header(plan, dialect)}${q.sql}\nORDER BY ${order}`
+}
+
+/** The moments query without header or ORDER BY, for wrapping (the reader adds its own ordering). */
+export function momentsQuery(plan: MomentsPlan, source: SqlSource, dialect: SqlDialect): MomentsQuery {
+  if (source.kind === 'parquet' && dialect !== 'duckdb') {
+    throw new RangeError(`a Parquet file source needs the duckdb dialect, got ${dialect}; use a table source`)
+  }
+  const g = new Gen(plan, source, dialect)
+  return g.build()
+}
+
+function header(plan: MomentsPlan, dialect: SqlDialect): string {
+  const clean = (s: string) => s.replace(/[\r\n]+/g, ' ')
+  const w = plan.window
+  const win = w.kind === 'fixed' ? `${clean(w.label)} (fixed, epoch-aligned)` : `${w.unit} in ${clean(w.timeZone)}`
+  const lines = [
+    `-- slopeshift partial moments per (file, series, window); dialect ${dialect}`,
+    `-- window ${win}; x = time since window start in ${plan.xUnit}; y = ${clean(plan.y.column)}`,
+    plan.weight === null ? null : `-- weighted by ${clean(plan.weight.column)} (two passes: means, then centred sums)`,
+    dialect === 'duckdb' ? null : '-- timestamps: EXTRACT(EPOCH FROM ts) to microseconds; give timestamptz columns',
+  ]
+  return `${lines.filter((l) => l !== null).join('\n')}\n`
+}
+
+type Ticks = 's' | 'ms' | 'us' | 'ns'
+const ticksPerMs: Readonly<Record<Ticks, number>> = { s: 0.001, ms: 1, us: 1000, ns: 1_000_000 }
+
+/** Builds the query text; one instance per call. Column names inside start with `ss_`. */
+class Gen {
+  private readonly d: SqlDialect
+  private readonly keys: readonly string[]
+  private readonly ticks: Ticks
+  private readonly floatT: boolean
+  private readonly weighted: boolean
+  private readonly lag: boolean
+
+  constructor(
+    private readonly plan: MomentsPlan,
+    private readonly source: SqlSource,
+    dialect: SqlDialect,
+  ) {
+    this.d = dialect
+    const fileKeys = source.kind === 'parquet' ? (source.fileKeys ?? []) : []
+    this.keys = plan.keys.filter((k) => !fileKeys.includes(k))
+    if (source.x.kind === 'timestamp') this.ticks = dialect === 'duckdb' ? source.x.ticks : 'us'
+    else this.ticks = plan.x.epochUnit
+    this.floatT = source.x.kind === 'epoch' && !source.x.integer
+    this.weighted = plan.weight !== null
+    this.lag = plan.trackLag && !this.weighted
+  }
+
+  private get dbl(): string {
+    return this.d === 'duckdb' ? 'DOUBLE' : 'DOUBLE PRECISION'
+  }
+
+  private num(v: number): string {
+    return `CAST(${v} AS ${this.dbl})`
+  }
+
+  /** Finite test for a DOUBLE expression (statistics.md §1.7: filter non-finite values with the dialect's predicate). */
+  private finite(e: string): string {
+    if (this.d === 'duckdb') return `isfinite(${e})`
+    // NaN compares false (IEEE) or greater than everything (PostgreSQL): excluded either way.
+    return `ABS(${e}) <= CAST(1.7976931348623157E308 AS DOUBLE PRECISION)`
+  }
+
+  /** Integer floor division a/b for b > 0 (BIGINT), correct for negative a too. */
+  private floorDiv(a: string, b: number): string {
+    if (this.d === 'duckdb') return `(${a} // ${b} - CASE WHEN ${a} % ${b} < 0 THEN 1 ELSE 0 END)`
+    return `((${a} - MOD(MOD(${a}, ${b}) + ${b}, ${b})) / ${b})`
+  }
+
+  /** Exact integer division of a multiple of b. */
+  private exactDiv(a: string, b: number): string {
+    return this.d === 'duckdb' ? `(${a} // ${b})` : `(${a} / ${b})`
+  }
+
+  private fromClause(): string {
+    const s = this.source
+    if (s.kind === 'table') {
+      return s.table
+        .split('.')
+        .map((p) => quoteIdent(p))
+        .join('.')
+    }
+    const files = s.files.map((f) => quoteString(f)).join(', ')
+    const hive =
+      s.fileKeys === undefined ? 'hive_partitioning = true, hive_types_autocast = false' : 'hive_partitioning = false'
+    const rn = this.lag ? ', file_row_number = true' : ''
+    return `read_parquet([${files}], filename = true${rn}, ${hive}, union_by_name = true)`
+  }
+
+  /** Layer 1: needed columns only; timestamp → integer ticks (or DOUBLE epoch), y/w → DOUBLE. */
+  private srcLayer(): string {
+    const p = this.plan
+    const s = this.source
+    const cols: string[] = []
+    if (s.kind === 'parquet') cols.push('filename AS ss_file')
+    else if (s.fileColumn !== undefined) cols.push(`CAST(${quoteIdent(s.fileColumn)} AS VARCHAR) AS ss_file`)
+    else cols.push(`CAST(${quoteString(s.table)} AS VARCHAR) AS ss_file`)
+    this.keys.forEach((k, i) => {
+      cols.push(`CAST(${quoteIdent(k)} AS VARCHAR) AS ss_k${i}`)
+    })
+    cols.push(`${this.ticksExpr(quoteIdent(p.x.column))} AS ss_t`)
+    cols.push(`CAST(${quoteIdent(p.y.column)} AS ${this.dbl}) AS ss_y`)
+    if (p.weight !== null) cols.push(`CAST(${quoteIdent(p.weight.column)} AS ${this.dbl}) AS ss_w`)
+    if (this.lag) {
+      if (s.kind === 'parquet') cols.push('file_row_number AS ss_rn')
+      else if (s.orderColumn !== undefined) cols.push(`${quoteIdent(s.orderColumn)} AS ss_rn`)
+    }
+    return `SELECT ${cols.join(',\n         ')}\n  FROM ${this.fromClause()}`
+  }
+
+  /** x column → integer ticks (timestamps) or the raw number (epoch); NULL when not finite. */
+  private ticksExpr(col: string): string {
+    const x = this.source.x
+    if (x.kind === 'timestamp') {
+      if (this.d === 'duckdb') return `CASE WHEN isfinite(${col}) THEN epoch_${this.ticks}(${col}) END`
+      const e = `CAST(EXTRACT(EPOCH FROM ${col}) * 1000000 AS BIGINT)`
+      return this.d === 'postgres' ? `CASE WHEN isfinite(${col}) THEN ${e} END` : e
+    }
+    if (x.integer) return `CAST(${col} AS BIGINT)`
+    // Keep the fraction; the bound keeps FLOOR(t) (and t·1000 for seconds) inside BIGINT and drops NaN/±Inf.
+    const bound = this.ticks === 's' ? '9.0E15' : '9.0E18'
+    const v = `CAST(${col} AS ${this.dbl})`
+    return `CASE WHEN ABS(${v}) < CAST(${bound} AS ${this.dbl}) THEN ${v} END`
+  }
+
+  /** Layer 2 expression: the instant in whole epoch ms (floor), BIGINT. */
+  private msExpr(): string {
+    const t = this.floatT ? 'CAST(FLOOR(ss_t) AS BIGINT)' : 'ss_t'
+    switch (this.ticks) {
+      case 's':
+        return `${t} * 1000`
+      case 'ms':
+        return t
+      default:
+        return this.floorDiv(t, ticksPerMs[this.ticks])
+    }
+  }
+
+  /** Layer 3 expression: window start in epoch ms from `ss_tm`. */
+  private windowExpr(): string {
+    const w = this.plan.window
+    if (w.kind === 'fixed') {
+      return `${this.floorDiv('ss_tm', w.sizeMs)} * ${w.sizeMs}`
+    }
+    const unit = w.unit === 'isoweek' ? 'week' : w.unit
+    const tz = quoteString(w.timeZone)
+    if (this.d === 'duckdb') {
+      // timezone('UTC', TIMESTAMP) reads the naive epoch value as UTC whatever the session zone is.
+      const inst = `timezone('UTC', epoch_ms(ss_tm))`
+      return `epoch_ms(timezone(${tz}, date_trunc('${unit}', timezone(${tz}, ${inst}))))`
+    }
+    const inst = `to_timestamp(ss_tm / 1000.0)`
+    return `CAST(EXTRACT(EPOCH FROM (date_trunc('${unit}', ${inst} AT TIME ZONE ${tz}) AT TIME ZONE ${tz})) * 1000 AS BIGINT)`
+  }
+
+  /** x in x units from `ss_t` and `ss_ws` (window start, ms). */
+  private xExpr(): string {
+    const tpm = ticksPerMs[this.ticks]
+    const startTicks = this.ticks === 's' ? this.exactDiv('ss_ws', 1000) : tpm === 1 ? 'ss_ws' : `ss_ws * ${tpm}`
+    const diff = this.floatT
+      ? `(ss_t - CAST(${startTicks} AS ${this.dbl}))`
+      : `CAST(ss_t - ${startTicks} AS ${this.dbl})`
+    const perUnit = msPerXUnit[this.plan.xUnit] * tpm
+    if (perUnit === 1) return diff
+    if (perUnit > 1) return `${diff} / ${this.num(perUnit)}`
+    return `${diff} * ${this.num(Math.round(1 / perUnit))}`
+  }
+
+  private validExpr(): string {
+    const parts = [this.finite('ss_y')]
+    if (this.weighted) parts.push(this.finite('ss_w'), 'ss_w > 0')
+    return parts.join(' AND ')
+  }
+
+  build(): MomentsQuery {
+    const kCols = this.keys.map((_, i) => `ss_k${i}`)
+    const groupCols = ['ss_file', ...kCols, 'ss_ws']
+    const carry = ['ss_file', ...kCols, 'ss_t', 'ss_y']
+    if (this.weighted) carry.push('ss_w')
+    if (this.lag && this.hasRn()) carry.push('ss_rn')
+    const valid = this.validExpr()
+    const ptsCols = [
+      'ss_file',
+      ...kCols,
+      'ss_ws',
+      `CASE WHEN ${valid} THEN ${this.xExpr()} END AS ss_x`,
+      `CASE WHEN ${valid} THEN ss_y END AS ss_yv`,
+    ]
+    if (this.weighted) ptsCols.push(`CASE WHEN ${valid} THEN ss_w END AS ss_wv`)
+    if (this.lag) {
+      if (this.source.kind === 'table') ptsCols.push('ss_t AS ss_ord')
+      if (this.hasRn()) ptsCols.push('ss_rn')
+    }
+    const ctes = [
+      `ss_src AS (\n  ${this.srcLayer()}\n)`,
+      `ss_tms AS (\n  SELECT ${carry.join(', ')}, ${this.msExpr()} AS ss_tm FROM ss_src\n)`,
+      `ss_win AS (\n  SELECT ${carry.join(', ')}, ${this.windowExpr()} AS ss_ws FROM ss_tms\n)`,
+      `ss_pts AS (\n  SELECT ${ptsCols.join(',\n         ')}\n  FROM ss_win\n)`,
+    ]
+    const outKeys = this.keys.map((k, i) => `ss_k${i} AS ${quoteIdent(k)}`)
+    const lead = ['ss_file AS "file"', ...outKeys, 'ss_ws AS window_start_ms']
+    let body: string
+    if (this.weighted) body = this.weightedBody(ctes, groupCols, lead)
+    else if (this.lag) body = this.lagBody(ctes, groupCols, lead)
+    else body = this.plainBody(ctes, groupCols, lead)
+    const columns = ['file', ...this.keys, 'window_start_ms', ...momentColumns, ...(this.lag ? lagColumns : [])]
+    return { sql: body, keys: this.keys, columns }
+  }
+
+  private hasRn(): boolean {
+    return this.source.kind === 'parquet' || this.source.orderColumn !== undefined
+  }
+
+  private momentAggs(from: string): string[] {
+    const c = `${from}ss_yv, ${from}ss_x`
+    return [
+      `REGR_COUNT(${c}) AS n`,
+      `CAST(REGR_COUNT(${c}) AS ${this.dbl}) AS w_sum`,
+      `REGR_AVGX(${c}) AS x_mean`,
+      `REGR_AVGY(${c}) AS y_mean`,
+      `REGR_SXX(${c}) AS sxx`,
+      `REGR_SYY(${c}) AS syy`,
+      `REGR_SXY(${c}) AS sxy`,
+      `MIN(${from}ss_x) AS x_min`,
+      `MAX(${from}ss_x) AS x_max`,
+      `COUNT(*) - REGR_COUNT(${c}) AS points_skipped`,
+    ]
+  }
+
+  private plainBody(ctes: string[], groupCols: string[], lead: string[]): string {
+    const sel = [...lead, ...this.momentAggs('')]
+    return `WITH ${ctes.join(',\n')}\nSELECT ${sel.join(',\n       ')}\nFROM ss_pts\nGROUP BY ${groupCols.join(', ')}`
+  }
+
+  /** Lag block via LAG() + REGR_* (statistics.md §1.7 table), rows in arrival order. */
+  private lagBody(ctes: string[], groupCols: string[], lead: string[]): string {
+    const ord = this.source.kind === 'parquet' ? 'ss_rn' : this.hasRn() ? 'ss_ord, ss_rn' : 'ss_ord'
+    // Valid rows and rejected rows (x NULL) are separate partitions, so LAG pairs consecutive accepted rows.
+    const part = `PARTITION BY ${groupCols.join(', ')}, (ss_x IS NULL) ORDER BY ${ord}`
+    const useArg = this.d === 'duckdb' && this.source.kind === 'parquet'
+    const lagCols = ['*', 'LAG(ss_x) OVER ss_w AS ss_px', 'LAG(ss_yv) OVER ss_w AS ss_py']
+    if (!useArg) {
+      const frame = 'ss_w ROWS BETWEEN UNBOUNDED PRECEDING AND UNBOUNDED FOLLOWING'
+      lagCols.push(
+        `FIRST_VALUE(ss_x) OVER (${frame}) AS ss_fx`,
+        `FIRST_VALUE(ss_yv) OVER (${frame}) AS ss_fy`,
+        `LAST_VALUE(ss_x) OVER (${frame}) AS ss_lx`,
+        `LAST_VALUE(ss_yv) OVER (${frame}) AS ss_ly`,
+      )
+    }
+    ctes.push(`ss_lag AS (\n  SELECT ${lagCols.join(', ')}\n  FROM ss_pts\n  WINDOW ss_w AS (${part})\n)`)
+    const ends = useArg
+      ? [
+          'arg_min(ss_x, ss_rn) AS first_x',
+          'arg_min(ss_yv, ss_rn) AS first_y',
+          'arg_max(ss_x, ss_rn) AS last_x',
+          'arg_max(ss_yv, ss_rn) AS last_y',
+        ]
+      : ['MAX(ss_fx) AS first_x', 'MAX(ss_fy) AS first_y', 'MAX(ss_lx) AS last_x', 'MAX(ss_ly) AS last_y']
+    const sel = [
+      ...lead,
+      ...this.momentAggs(''),
+      'REGR_COUNT(ss_yv, ss_py) AS pairs',
+      'REGR_AVGY(ss_x, ss_px) AS cur_x_mean',
+      'REGR_AVGY(ss_yv, ss_py) AS cur_y_mean',
+      'REGR_AVGX(ss_x, ss_px) AS prev_x_mean',
+      'REGR_AVGX(ss_yv, ss_py) AS prev_y_mean',
+      'REGR_SXY(ss_yv, ss_py) AS c_yy1',
+      'REGR_SXY(ss_yv, ss_px) AS c_yx1',
+      'REGR_SXY(ss_x, ss_py) AS c_xy1',
+      'REGR_SXY(ss_x, ss_px) AS c_xx1',
+      ...ends,
+      'SUM(CASE WHEN ss_x < ss_px THEN 1 ELSE 0 END) AS out_of_order',
+    ]
+    return `WITH ${ctes.join(',\n')}\nSELECT ${sel.join(',\n       ')}\nFROM ss_lag\nGROUP BY ${groupCols.join(', ')}`
+  }
+
+  /**
+   * Weighted co-moments (statistics.md §1.5): no standard weighted REGR_*, so two passes. Pass 1: per
+   * group Σw, weighted means, min/max. Pass 2: centred sums around those means, with the correction
+   * term of the corrected two-pass algorithm (Chan, Golub & LeVeque 1983): Σw·dx² − (Σw·dx)²/Σw, and the
+   * means refined by Σw·dx/Σw. Centring first avoids the error growth of raw or far-shifted sums (§1.3).
+   */
+  private weightedBody(ctes: string[], groupCols: string[], lead: string[]): string {
+    ctes.push(
+      `ss_g AS (\n  SELECT ${groupCols.join(', ')}, COUNT(*) AS ss_rows, COUNT(ss_x) AS ss_n, SUM(ss_wv) AS ss_ws_w,\n` +
+        `         SUM(ss_wv * ss_x) / SUM(ss_wv) AS ss_xm, SUM(ss_wv * ss_yv) / SUM(ss_wv) AS ss_ym,\n` +
+        `         MIN(ss_x) AS ss_xmin, MAX(ss_x) AS ss_xmax\n  FROM ss_pts\n  GROUP BY ${groupCols.join(', ')}\n)`,
+    )
+    const on = groupCols.map((c) => `p.${c} IS NOT DISTINCT FROM g.${c}`).join(' AND ')
+    ctes.push(
+      `ss_c AS (\n  SELECT ${groupCols.map((c) => `g.${c}`).join(', ')},\n` +
+        '         SUM(p.ss_wv * (p.ss_x - g.ss_xm)) AS ss_dx, SUM(p.ss_wv * (p.ss_yv - g.ss_ym)) AS ss_dy,\n' +
+        '         SUM(p.ss_wv * (p.ss_x - g.ss_xm) * (p.ss_x - g.ss_xm)) AS ss_xx,\n' +
+        '         SUM(p.ss_wv * (p.ss_yv - g.ss_ym) * (p.ss_yv - g.ss_ym)) AS ss_yy,\n' +
+        '         SUM(p.ss_wv * (p.ss_x - g.ss_xm) * (p.ss_yv - g.ss_ym)) AS ss_xy\n' +
+        `  FROM ss_pts p JOIN ss_g g ON ${on}\n  WHERE p.ss_x IS NOT NULL\n` +
+        `  GROUP BY ${groupCols.map((c) => `g.${c}`).join(', ')}\n)`,
+    )
+    const gLead = lead.map((l) => `g.${l}`)
+    const on2 = groupCols.map((c) => `c.${c} IS NOT DISTINCT FROM g.${c}`).join(' AND ')
+    const sel = [
+      ...gLead,
+      'g.ss_n AS n',
+      'g.ss_ws_w AS w_sum',
+      'g.ss_xm + c.ss_dx / g.ss_ws_w AS x_mean',
+      'g.ss_ym + c.ss_dy / g.ss_ws_w AS y_mean',
+      'c.ss_xx - c.ss_dx * c.ss_dx / g.ss_ws_w AS sxx',
+      'c.ss_yy - c.ss_dy * c.ss_dy / g.ss_ws_w AS syy',
+      'c.ss_xy - c.ss_dx * c.ss_dy / g.ss_ws_w AS sxy',
+      'g.ss_xmin AS x_min',
+      'g.ss_xmax AS x_max',
+      'g.ss_rows - g.ss_n AS points_skipped',
+    ]
+    return `WITH ${ctes.join(',\n')}\nSELECT ${sel.join(',\n       ')}\nFROM ss_g g LEFT JOIN ss_c c ON ${on2}`
+  }
+}
