@@ -1,0 +1,441 @@
+/**
+ * Parquet → partial moments through the embedded DuckDB (design.md "Engines and libraries"): one scan
+ * over all given files runs the `REGR_*` query of `sql.ts` and returns moments per (file, series,
+ * window). No rows come back to JS, only one result row per group.
+ *
+ * Steps: (1) read every file's schema from its footer in one `parquet_schema` call and check the
+ * needed columns and their types; (2) one aggregation query per set of files that share the same Hive
+ * key columns (normally one set); (3) convert the result column-wise into `PartialMoments`.
+ *
+ * Hive folder values come from discovery (`SourceFile.hive`), not from DuckDB's own path parsing, so
+ * the Arrow and Parquet paths share one source of truth; a Hive segment wins over a file column of the
+ * same name.
+ *
+ * Lag block order: rows are ordered by `file_row_number`, i.e. as they arrive in the file, exactly like
+ * the streaming kernel, so `in_order` turns false when a row's x is below the previous accepted row's x
+ * in the same series and window (statistics.md §5.1). Ordering by timestamp instead would make
+ * `in_order` true by construction and hide unsorted files.
+ */
+import type { DuckDBDataChunk, DuckDBMaterializedResult } from '@duckdb/node-api'
+import { DataError, NoInputError } from '../errors.js'
+import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Moments } from '../kernel/moments.js'
+import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
+import { seriesId } from '../types.js'
+import { type DuckDbSession, openDuckDb } from './duckdb.js'
+import { momentsQuery, quoteString, type XStorage } from './sql.js'
+
+export interface ReadParquetOptions {
+  /** DuckDB worker threads (≥ 1). */
+  readonly threads: number
+  /** DuckDB memory limit, e.g. `1GB` (default: DuckDB's own). */
+  readonly memoryLimit?: string
+  /** Aborts between steps and interrupts a running query. */
+  readonly signal?: AbortSignal
+}
+
+export interface ParquetPartials {
+  /** Sorted by file, series id (`seriesId(key)`), window start. */
+  readonly partials: PartialMoments[]
+  /** One entry per input file, in input order. */
+  readonly stats: ReadStats[]
+}
+
+/**
+ * Reads Parquet files and returns partial moments per (file, series, window) plus per-file counters.
+ *
+ * - x: a timestamp column of any unit (TIMESTAMP_NS kept exact via `epoch_ns`) or a numeric epoch column
+ *   in `plan.x.epochUnit` (fractions allowed); x is measured from the window start in `plan.xUnit`.
+ * - Rows with null/non-finite y (or an invalid weight) are skipped and counted in `moments.skipped` of
+ *   their window and in the file's `skipped`; rows with a null or non-finite timestamp count for the file
+ *   only. A group made only of skipped rows yields a partial with n = 0.
+ * - A file with zero rows yields no partials and `rows = 0`.
+ *
+ * Errors: a needed column missing from a file → NoInputError (names the file, the column, the file's
+ * columns and the config key to fix); y not numeric or x neither timestamp nor numeric, or a file
+ * DuckDB cannot read as Parquet → DataError naming the file. When `signal` aborts, rejects with its reason.
+ */
+export async function readParquetPartials(
+  files: readonly SourceFile[],
+  plan: MomentsPlan,
+  options: ReadParquetOptions,
+): Promise<ParquetPartials> {
+  const { signal } = options
+  signal?.throwIfAborted()
+  if (files.length === 0) return { partials: [], stats: [] }
+  const db = await openDuckDb(
+    options.memoryLimit === undefined
+      ? { threads: options.threads }
+      : { threads: options.threads, memoryLimit: options.memoryLimit },
+  )
+  const onAbort = () => db.interrupt()
+  signal?.addEventListener('abort', onAbort, { once: true })
+  try {
+    const schemas = await readSchemas(db, files, signal)
+    const stats = new Map<string, ReadStats>(files.map((f) => [f.path, { file: f.path, rows: 0, skipped: 0 }]))
+    const runs: SeriesRun[] = []
+    for (const group of groupByFileKeys(files, plan)) {
+      signal?.throwIfAborted()
+      const x = checkColumns(group.files, plan, schemas)
+      const q = momentsQuery(
+        plan,
+        { kind: 'parquet', files: group.files.map((f) => f.path), x, fileKeys: group.fileKeys },
+        'duckdb',
+      )
+      const result = await runScan(db, wrapQuery(q.sql, q.columns.length, q.keys.length), group.files, signal)
+      signal?.throwIfAborted()
+      collect(result, plan, q.keys, group.files, stats, runs)
+    }
+    runs.sort(compareRuns)
+    const partials: PartialMoments[] = []
+    for (const r of runs) for (const p of r.partials) partials.push(p)
+    return { partials, stats: files.map((f) => stats.get(f.path) as ReadStats) }
+  } finally {
+    signal?.removeEventListener('abort', onAbort)
+    db.close()
+  }
+}
+
+/** Top-level columns of one file: name → DuckDB type text. */
+type FileSchema = ReadonlyMap<string, string>
+
+/** Reads all footers in one call; on failure, finds the first unreadable file and names it. */
+async function readSchemas(
+  db: DuckDbSession,
+  files: readonly SourceFile[],
+  signal: AbortSignal | undefined,
+): Promise<Map<string, FileSchema>> {
+  const list = (paths: readonly string[]) => `[${paths.map((p) => quoteString(p)).join(', ')}]`
+  const sql = (paths: readonly string[]) =>
+    `SELECT file_name, name, duckdb_type, num_children FROM parquet_schema(${list(paths)})`
+  let result: DuckDBMaterializedResult
+  try {
+    result = await db.run(sql(files.map((f) => f.path)))
+  } catch (err) {
+    signal?.throwIfAborted()
+    for (const f of files) {
+      try {
+        await db.run(sql([f.path]))
+      } catch (one) {
+        signal?.throwIfAborted()
+        throw unreadable(f.path, one)
+      }
+    }
+    throw unreadable(files.map((f) => f.path).join(', '), err)
+  }
+  const rows = (await result.getRowsJS()) as unknown[][]
+  const byFile = new Map<string, { name: string; type: string | null; children: number }[]>()
+  for (const [file, name, type, children] of rows) {
+    const key = String(file)
+    let arr = byFile.get(key)
+    if (arr === undefined) {
+      arr = []
+      byFile.set(key, arr)
+    }
+    arr.push({ name: String(name), type: type === null ? null : String(type), children: Number(children ?? 0) })
+  }
+  const out = new Map<string, FileSchema>()
+  for (const f of files) {
+    const elems = byFile.get(f.path) ?? []
+    const cols = new Map<string, string>()
+    // Flattened schema tree: element 0 is the root; skip the subtrees of nested (group) columns.
+    let i = 1
+    const skip = (): void => {
+      const e = elems[i++]
+      for (let c = 0; c < (e?.children ?? 0); c++) skip()
+    }
+    const top = elems[0]?.children ?? 0
+    for (let c = 0; c < top && i < elems.length; c++) {
+      const e = elems[i]
+      if (e !== undefined) cols.set(e.name, e.type ?? 'STRUCT')
+      skip()
+    }
+    out.set(f.path, cols)
+  }
+  return out
+}
+
+function unreadable(file: string, cause: unknown): DataError {
+  const why = cause instanceof Error ? cause.message.split('\n')[0] : String(cause)
+  return new DataError(
+    `${file} is not a readable Parquet file (${why}); replace the file or remove it from the dataset`,
+    { context: { file }, cause },
+  )
+}
+
+interface FileGroup {
+  readonly files: SourceFile[]
+  /** Key columns taken from the files' Hive segments. */
+  readonly fileKeys: string[]
+}
+
+/** Files with the same set of Hive-supplied key columns go into one scan. */
+function groupByFileKeys(files: readonly SourceFile[], plan: MomentsPlan): FileGroup[] {
+  const groups = new Map<string, FileGroup>()
+  for (const f of files) {
+    const fileKeys = plan.keys.filter((k) => Object.hasOwn(f.hive, k))
+    const sig = JSON.stringify(fileKeys)
+    let g = groups.get(sig)
+    if (g === undefined) {
+      g = { files: [], fileKeys }
+      groups.set(sig, g)
+    }
+    g.files.push(f)
+  }
+  return [...groups.values()]
+}
+
+const integerTypes = new Set([
+  'TINYINT',
+  'SMALLINT',
+  'INTEGER',
+  'BIGINT',
+  'HUGEINT',
+  'UTINYINT',
+  'USMALLINT',
+  'UINTEGER',
+  'UBIGINT',
+  'UHUGEINT',
+])
+const isInteger = (t: string) => integerTypes.has(t)
+const isNumeric = (t: string) => isInteger(t) || t === 'FLOAT' || t === 'DOUBLE' || t.startsWith('DECIMAL')
+const timestampTicks: Readonly<Record<string, 'ms' | 'us' | 'ns'>> = {
+  TIMESTAMP_S: 'ms',
+  TIMESTAMP_MS: 'ms',
+  TIMESTAMP: 'us',
+  'TIMESTAMP WITH TIME ZONE': 'us',
+  DATE: 'us',
+  TIMESTAMP_NS: 'ns',
+}
+const tickRank = { ms: 0, us: 1, ns: 2 } as const
+
+/**
+ * Checks that every file has the needed columns with usable types and returns how x is stored across
+ * the files (the finest timestamp unit, or numeric epoch; integer only when every file has integers).
+ */
+function checkColumns(files: readonly SourceFile[], plan: MomentsPlan, schemas: Map<string, FileSchema>): XStorage {
+  const needed: { column: string; fix: string }[] = [
+    ...plan.keys.map((k) => ({ column: k, fix: 'fix source.keys' })),
+    { column: plan.x.column, fix: 'set source.x.column' },
+    { column: plan.y.column, fix: 'set source.y.column' },
+  ]
+  if (plan.weight !== null) needed.push({ column: plan.weight.column, fix: 'set source.weight.column' })
+  let ticks: 'ms' | 'us' | 'ns' | null = null
+  let epochFile: string | null = null
+  let tsFile: string | null = null
+  let allInteger = true
+  for (const f of files) {
+    const cols = schemas.get(f.path) ?? new Map<string, string>()
+    for (const { column, fix } of needed) {
+      if (cols.has(column) || Object.hasOwn(f.hive, column)) continue
+      const has = [...cols.keys(), ...Object.keys(f.hive)].join(', ')
+      throw new NoInputError(`column "${column}" not found in ${f.path} (has: ${has}); ${fix} in the config`, {
+        context: { file: f.path, column },
+      })
+    }
+    const yType = cols.get(plan.y.column)
+    if (yType !== undefined && !isNumeric(yType)) throw wrongType(f.path, plan.y.column, yType, 'a number', 'y')
+    if (plan.weight !== null) {
+      const wType = cols.get(plan.weight.column)
+      if (wType !== undefined && !isNumeric(wType)) {
+        throw wrongType(f.path, plan.weight.column, wType, 'a number', 'weight')
+      }
+    }
+    const xType = cols.get(plan.x.column)
+    if (xType === undefined) {
+      throw new DataError(
+        `x column "${plan.x.column}" of ${f.path} is a Hive folder segment; x must be a timestamp or number column in the file`,
+        { context: { file: f.path, column: plan.x.column } },
+      )
+    }
+    const t = timestampTicks[xType]
+    if (t !== undefined) {
+      tsFile ??= f.path
+      if (ticks === null || tickRank[t] > tickRank[ticks]) ticks = t
+    } else if (isNumeric(xType)) {
+      epochFile ??= f.path
+      if (!isInteger(xType)) allInteger = false
+    } else {
+      throw wrongType(f.path, plan.x.column, xType, 'a timestamp or a numeric epoch', 'x')
+    }
+    if (tsFile !== null && epochFile !== null) {
+      throw new DataError(
+        `x column "${plan.x.column}" is a timestamp in ${tsFile} but a number in ${epochFile}; write one type in all files`,
+        { context: { file: f.path, column: plan.x.column } },
+      )
+    }
+  }
+  if (ticks !== null) return { kind: 'timestamp', ticks }
+  return { kind: 'epoch', integer: allInteger }
+}
+
+function wrongType(file: string, column: string, type: string, want: string, role: string): DataError {
+  return new DataError(
+    `column "${column}" in ${file} has type ${type} but ${role} must be ${want}; fix the writer or set source.${role}.column to another column`,
+    { context: { file, column, type } },
+  )
+}
+
+/**
+ * Wraps the moments query: positional column names (no clash with key names), a dense series number
+ * so key strings are read once per series, DOUBLE columns for fast column-wise reading, fixed order.
+ */
+function wrapQuery(sql: string, width: number, keyCount: number): string {
+  const names = Array.from({ length: width }, (_, i) => `c${i}`)
+  const keyCols = names.slice(0, keyCount + 1).join(', ')
+  const numeric = names.slice(keyCount + 1).map((c) => `CAST(${c} AS DOUBLE)`)
+  return (
+    `SELECT CAST(dense_rank() OVER (ORDER BY ${keyCols}) AS DOUBLE) AS sid, ${keyCols}, ${numeric.join(', ')}\n` +
+    `FROM (\n${sql}\n) AS m(${names.join(', ')})\nORDER BY 1, ${keyCount + 3} NULLS FIRST`
+  )
+}
+
+async function runScan(
+  db: DuckDbSession,
+  sql: string,
+  files: readonly SourceFile[],
+  signal: AbortSignal | undefined,
+): Promise<DuckDBMaterializedResult> {
+  try {
+    return await db.run(sql)
+  } catch (err) {
+    signal?.throwIfAborted()
+    const msg = err instanceof Error ? err.message : String(err)
+    if (/^(Binder|Parser|Catalog) Error/.test(msg)) throw err
+    const file = files.find((f) => msg.includes(f.path))?.path ?? files.map((f) => f.path).join(', ')
+    throw new DataError(
+      `reading ${file} failed (${msg.split('\n')[0]}); replace the file or remove it from the dataset`,
+      { context: { file }, cause: err },
+    )
+  }
+}
+
+/** The partials of one (file, series), windows ascending. */
+interface SeriesRun {
+  readonly file: string
+  readonly key: SeriesKey
+  readonly id: string
+  readonly partials: PartialMoments[]
+}
+
+function compareRuns(a: SeriesRun, b: SeriesRun): number {
+  if (a.file !== b.file) return a.file < b.file ? -1 : 1
+  if (a.id !== b.id) return a.id < b.id ? -1 : 1
+  return 0
+}
+
+/** Column-wise conversion of the wrapped result into runs of partials and per-file counters. */
+function collect(
+  result: DuckDBMaterializedResult,
+  plan: MomentsPlan,
+  sqlKeys: readonly string[],
+  files: readonly SourceFile[],
+  stats: Map<string, ReadStats>,
+  runs: SeriesRun[],
+): void {
+  const byPath = new Map(files.map((f) => [f.path, f]))
+  const k = sqlKeys.length
+  const keyPos = plan.keys.map((name) => sqlKeys.indexOf(name))
+  const lag = plan.trackLag && plan.weight === null
+  const base = k + 2 // sid, file, keys…, then window_start_ms at base
+  let lastSid = Number.NaN
+  let run: SeriesRun | null = null
+  let fileStats: ReadStats | null = null
+  for (let ci = 0; ci < result.chunkCount; ci++) {
+    const chunk: DuckDBDataChunk = result.getChunk(ci)
+    const rowCount = chunk.rowCount
+    const col = (i: number) => chunk.getColumnVector(i)
+    const sidV = col(0)
+    const num = Array.from({ length: chunk.columnCount - base }, (_, i) => col(base + i))
+    const get = (i: number, r: number): number | null => {
+      const v = num[i]?.getItem(r)
+      return typeof v === 'number' ? v : null
+    }
+    for (let r = 0; r < rowCount; r++) {
+      const sid = sidV.getItem(r) as number
+      if (sid !== lastSid) {
+        lastSid = sid
+        const path = String(col(1).getItem(r))
+        const src = byPath.get(path)
+        if (src === undefined) throw new Error(`DuckDB returned an unknown file name ${path}`)
+        const key: SeriesKey = plan.keys.map((name, i) => {
+          const p = keyPos[i] ?? -1
+          if (p < 0) return src.hive[name] ?? null
+          const v = col(2 + p).getItem(r)
+          return v === null || v === undefined ? null : String(v)
+        })
+        run = { file: path, key, id: seriesId(key), partials: [] }
+        runs.push(run)
+        fileStats = stats.get(path) ?? null
+      }
+      const n = get(1, r) ?? 0
+      const skipped = get(10, r) ?? 0
+      if (fileStats !== null) {
+        fileStats.rows += n + skipped
+        fileStats.skipped += skipped
+      }
+      const ws = get(0, r)
+      if (ws === null || run === null) continue // timestamp null or not finite: counted for the file only
+      const m = toMoments(get, r, n, skipped, lag)
+      const bad = invalidMomentsReason(m)
+      if (bad !== null) {
+        throw new DataError(
+          `moments of series ${run.id} in window ${new Date(ws).toISOString()} of ${run.file} are invalid (${bad}); check the y values of that file`,
+          { context: { file: run.file, key: run.id } },
+        )
+      }
+      run.partials.push({ file: run.file, key: run.key, windowStartMs: ws, moments: m })
+    }
+  }
+}
+
+/** Numeric result columns after window_start_ms (index 0): see `momentColumns` and `lagColumns` in sql.ts. */
+function toMoments(
+  get: (i: number, r: number) => number | null,
+  r: number,
+  n: number,
+  skipped: number,
+  lag: boolean,
+): Moments {
+  if (n === 0) {
+    const m = emptyMoments(lag)
+    m.skipped = skipped
+    return m
+  }
+  const m: Moments = {
+    n,
+    wSum: get(2, r) ?? n,
+    xMean: get(3, r) ?? 0,
+    yMean: get(4, r) ?? 0,
+    sxx: get(5, r) ?? 0,
+    syy: get(6, r) ?? 0,
+    sxy: get(7, r) ?? 0,
+    xMin: get(8, r) ?? Number.POSITIVE_INFINITY,
+    xMax: get(9, r) ?? Number.NEGATIVE_INFINITY,
+    skipped,
+    lag: null,
+  }
+  if (lag) m.lag = toLag(get, r)
+  return m
+}
+
+function toLag(get: (i: number, r: number) => number | null, r: number): LagBlock {
+  const g = emptyLag()
+  const o = 11 // pairs
+  g.pairs = get(o, r) ?? 0
+  if (g.pairs > 0) {
+    g.curXMean = get(o + 1, r) ?? 0
+    g.curYMean = get(o + 2, r) ?? 0
+    g.prevXMean = get(o + 3, r) ?? 0
+    g.prevYMean = get(o + 4, r) ?? 0
+    g.cYy1 = get(o + 5, r) ?? 0
+    g.cYx1 = get(o + 6, r) ?? 0
+    g.cXy1 = get(o + 7, r) ?? 0
+    g.cXx1 = get(o + 8, r) ?? 0
+  }
+  g.firstX = get(o + 9, r) ?? Number.NaN
+  g.firstY = get(o + 10, r) ?? Number.NaN
+  g.lastX = get(o + 11, r) ?? Number.NaN
+  g.lastY = get(o + 12, r) ?? Number.NaN
+  g.inOrder = (get(o + 13, r) ?? 0) === 0
+  return g
+}
