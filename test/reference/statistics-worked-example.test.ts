@@ -639,7 +639,7 @@ describe('benjaminiHochberg (statistics.md §8.9)', () => {
     // feed them in a scrambled order: q-values follow their p-values
     const order = [5, 2, 7, 0, 3, 6, 1, 4]
     const q = benjaminiHochberg(order.map((i) => p[i] as number))
-    order.forEach((i, j) => expectPrinted(q[j], expected[i] as string, 1e-12, `q[${i}]`))
+    for (const [j, i] of order.entries()) expectPrinted(q[j], expected[i] as string, 1e-12, `q[${i}]`)
     expect(order.filter((_, j) => (q[j] as number) <= 0.05).sort()).toEqual([0, 1, 2, 3])
   })
 })
