@@ -160,7 +160,7 @@ async function checkColumns(
     `${table} table in ${dir}: ${first} lacks column${missing.length > 1 ? 's' : ''} ${missing.join(', ')} ` +
       `(has ${described.map((c) => c.name).join(', ')}); check the configured key columns (source.keys), or move ` +
       'the old table folder away and rerun to rebuild it',
-    { context: { file: first, column: missing[0] } },
+    { context: { file: first, column: missing.join(', ') } },
   )
 }
 
