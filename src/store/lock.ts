@@ -1,0 +1,239 @@
+/**
+ * One run at a time per output root (issue #4, lock): `<root>/_state/run.lock` names its holder.
+ * A second run waits up to `waitMs`, then fails with exit 75 (EX_TEMPFAIL: retry later). A lock left
+ * by a killed process is taken over safely.
+ */
+import { randomBytes } from 'node:crypto'
+import { link, readFile, stat, unlink, utimes, writeFile } from 'node:fs/promises'
+import { hostname as osHostname } from 'node:os'
+import { join } from 'node:path'
+import { setTimeout as sleep } from 'node:timers/promises'
+import { CantCreateError, TempFailError } from '../errors.js'
+import { ensureDir, hasCode, stateDir } from './paths.js'
+
+/** Stable code of the lock-timeout error (exit 75). */
+export const lockedCode = 'SLOPESHIFT_LOCKED'
+
+/** What the lock file holds. */
+export interface LockHolder {
+  readonly pid: number
+  readonly hostname: string
+  /** ISO 8601 UTC time the lock was taken. */
+  readonly startedAt: string
+  readonly runId: string
+}
+
+/** Options of `acquireRunLock`. */
+export interface RunLockOptions {
+  /** Id of the run taking the lock; written into the lock and checked on release. */
+  readonly runId: string
+  /** How long to wait for a live holder before giving up, ms (0: try once). */
+  readonly waitMs: number
+  /** Delay between attempts while waiting, ms (default 200). */
+  readonly pollMs?: number
+  /**
+   * A lock from another host whose heartbeat (the lock file's mtime) is older than this is stale, ms.
+   * Without it, a lock from another host is never taken over (its pid cannot be checked from here).
+   */
+  readonly staleAfterMs?: number
+  /** How often the holder refreshes the lock file's mtime, ms (default 10 000; 0 turns it off). */
+  readonly heartbeatMs?: number
+  /** Host name to record and compare (default `os.hostname()`). */
+  readonly hostname?: string
+}
+
+/** Releases the lock if it is still ours; idempotent. */
+export type ReleaseLock = () => Promise<void>
+
+/** `<root>/_state/run.lock`. */
+export function runLockPath(root: string): string {
+  return join(stateDir(root), 'run.lock')
+}
+
+/**
+ * Takes the run lock of `root`, waiting up to `waitMs` for a live holder; returns `release`.
+ *
+ * Exclusive creation: the holder record is written to a private temp file and hard-linked to
+ * `run.lock`. `link` fails with EEXIST when the lock exists, exactly like an O_EXCL (`wx`) create,
+ * but the lock appears with its full content, so no waiter ever reads a half-written holder.
+ *
+ * Stale locks: a holder on this host whose pid no longer exists (`process.kill(pid, 0)` → ESRCH),
+ * or, with `staleAfterMs`, a holder on another host whose heartbeat stopped. Takeover is guarded:
+ * a waiter first creates `run.lock.takeover` exclusively, re-reads the lock, removes it only if it
+ * is still the same stale holder, then removes the guard and competes for the lock like everyone
+ * else. Only the guard holder removes a lock it does not own, and a stale lock cannot change under
+ * it (nobody else removes it, nobody can create over it), so two waiters can never both take over,
+ * and a live lock is never removed. A guard left by a process killed inside this microsecond step
+ * is itself removed once its pid is gone (or after `staleAfterMs`).
+ *
+ * Known limit: pid reuse. If the dead holder's pid now belongs to an unrelated live process, the
+ * lock looks live; the waiter times out with a message naming the pid and the fix.
+ *
+ * @throws TempFailError (`SLOPESHIFT_LOCKED`, exit 75) when a live holder keeps the lock past `waitMs`.
+ * @throws CantCreateError when the state folder cannot be written.
+ */
+export async function acquireRunLock(root: string, options: RunLockOptions): Promise<ReleaseLock> {
+  const pollMs = options.pollMs ?? 200
+  const host = options.hostname ?? osHostname()
+  const lockPath = runLockPath(root)
+  const deadline = Date.now() + options.waitMs
+  const me: LockHolder = { pid: process.pid, hostname: host, startedAt: new Date().toISOString(), runId: options.runId }
+  const tmp = `${lockPath}.${process.pid}-${randomBytes(6).toString('hex')}.tmp`
+  try {
+    await ensureDir(stateDir(root))
+    await writeFile(tmp, `${JSON.stringify(me)}\n`, { flag: 'wx' })
+  } catch (cause) {
+    throw new CantCreateError(`cannot create the run lock in ${stateDir(root)}; check permissions on the output root`, {
+      context: { file: lockPath },
+      cause,
+    })
+  }
+  try {
+    for (;;) {
+      try {
+        await link(tmp, lockPath)
+        break
+      } catch (err) {
+        if (!hasCode(err, 'EEXIST')) throw err
+      }
+      const holder = await readHolder(lockPath)
+      if (holder === 'gone') continue
+      if (holder !== 'unreadable' && (await isStale(lockPath, holder, host, options.staleAfterMs))) {
+        await takeOver(lockPath, holder, host, options.staleAfterMs)
+        continue
+      }
+      if (Date.now() >= deadline) throw lockedError(root, lockPath, holder, options.waitMs)
+      await sleep(Math.max(1, Math.min(pollMs, deadline - Date.now())))
+    }
+  } finally {
+    await unlink(tmp).catch(() => undefined)
+  }
+
+  const heartbeatMs = options.heartbeatMs ?? 10_000
+  const timer =
+    heartbeatMs > 0
+      ? setInterval(() => {
+          const t = new Date()
+          utimes(lockPath, t, t).catch(() => undefined)
+        }, heartbeatMs)
+      : undefined
+  timer?.unref()
+  let released = false
+  return async () => {
+    if (released) return
+    released = true
+    if (timer !== undefined) clearInterval(timer)
+    const current = await readHolder(lockPath)
+    if (typeof current === 'object' && sameHolder(current, me)) await unlink(lockPath).catch(() => undefined)
+  }
+}
+
+/** Reads the holder recorded in a lock file: `gone` when it does not exist, `unreadable` when damaged. */
+export async function readHolder(lockPath: string): Promise<LockHolder | 'gone' | 'unreadable'> {
+  let text: string
+  try {
+    text = await readFile(lockPath, 'utf8')
+  } catch (err) {
+    if (hasCode(err, 'ENOENT')) return 'gone'
+    throw err
+  }
+  try {
+    const raw: unknown = JSON.parse(text)
+    if (
+      typeof raw === 'object' &&
+      raw !== null &&
+      'pid' in raw &&
+      typeof raw.pid === 'number' &&
+      'hostname' in raw &&
+      typeof raw.hostname === 'string' &&
+      'startedAt' in raw &&
+      typeof raw.startedAt === 'string' &&
+      'runId' in raw &&
+      typeof raw.runId === 'string'
+    ) {
+      return { pid: raw.pid, hostname: raw.hostname, startedAt: raw.startedAt, runId: raw.runId }
+    }
+  } catch {
+    // fall through
+  }
+  return 'unreadable'
+}
+
+/** True when `pid` names a live process on this host (EPERM: alive but not ours). */
+export function isPidAlive(pid: number): boolean {
+  if (!Number.isInteger(pid) || pid <= 0) return false
+  try {
+    process.kill(pid, 0)
+    return true
+  } catch (err) {
+    return !hasCode(err, 'ESRCH')
+  }
+}
+
+async function isStale(
+  path: string,
+  holder: LockHolder,
+  host: string,
+  staleAfterMs: number | undefined,
+): Promise<boolean> {
+  if (holder.hostname === host) return !isPidAlive(holder.pid)
+  if (staleAfterMs === undefined) return false
+  try {
+    return Date.now() - (await stat(path)).mtimeMs > staleAfterMs
+  } catch (err) {
+    if (hasCode(err, 'ENOENT')) return false
+    throw err
+  }
+}
+
+async function takeOver(
+  lockPath: string,
+  stale: LockHolder,
+  host: string,
+  staleAfterMs: number | undefined,
+): Promise<void> {
+  const guard = `${lockPath}.takeover`
+  const guardTmp = `${guard}.${process.pid}-${randomBytes(6).toString('hex')}.tmp`
+  const mine: LockHolder = { pid: process.pid, hostname: host, startedAt: new Date().toISOString(), runId: 'takeover' }
+  await writeFile(guardTmp, `${JSON.stringify(mine)}\n`, { flag: 'wx' })
+  try {
+    await link(guardTmp, guard)
+  } catch (err) {
+    await unlink(guardTmp).catch(() => undefined)
+    if (!hasCode(err, 'EEXIST')) throw err
+    // Someone else is taking over right now; if that someone died mid-step, clear its guard.
+    const other = await readHolder(guard)
+    if (typeof other === 'object' && (await isStale(guard, other, host, staleAfterMs))) {
+      const again = await readHolder(guard)
+      if (typeof again === 'object' && sameHolder(again, other)) await unlink(guard).catch(() => undefined)
+    }
+    return
+  }
+  await unlink(guardTmp).catch(() => undefined)
+  try {
+    const current = await readHolder(lockPath)
+    if (typeof current === 'object' && sameHolder(current, stale)) {
+      await unlink(lockPath).catch((err: unknown) => {
+        if (!hasCode(err, 'ENOENT')) throw err
+      })
+    }
+  } finally {
+    await unlink(guard).catch(() => undefined)
+  }
+}
+
+function sameHolder(a: LockHolder, b: LockHolder): boolean {
+  return a.pid === b.pid && a.hostname === b.hostname && a.startedAt === b.startedAt && a.runId === b.runId
+}
+
+function lockedError(root: string, lockPath: string, holder: LockHolder | 'unreadable', waitMs: number): TempFailError {
+  const who =
+    holder === 'unreadable'
+      ? 'an unreadable lock file'
+      : `run ${holder.runId} (pid ${holder.pid} on ${holder.hostname}, since ${holder.startedAt})`
+  return new TempFailError(
+    lockedCode,
+    `output root ${root} is locked by ${who}; waited ${waitMs} ms. Retry later or raise the lock wait; if that process is gone (another host, reused pid), delete ${lockPath}`,
+    { context: { file: lockPath, ...(holder === 'unreadable' ? {} : { pid: holder.pid, hostname: holder.hostname }) } },
+  )
+}
