@@ -1,0 +1,193 @@
+import { describe, expect, it } from 'vitest'
+import { accumulateRows, MomentSlots, type RowColumns, slotMoments } from '../../../src/kernel/accumulate.js'
+import { addRow, emptyMoments, type Moments } from '../../../src/kernel/moments.js'
+import { A, B, C, momentsOf } from '../../fixtures/worked-example.js'
+
+/** Rows of one slot (slot id 0). */
+function rowsOf(x: readonly number[], y: readonly number[], w?: readonly number[], slot = 0): RowColumns {
+  return {
+    length: x.length,
+    slot: new Int32Array(x.length).fill(slot),
+    x: Float64Array.from(x),
+    y: Float64Array.from(y),
+    weight: w === undefined ? null : Float64Array.from(w),
+  }
+}
+
+function oneSlot(weighted: boolean, trackLag: boolean): MomentSlots {
+  const s = new MomentSlots({ weighted, trackLag })
+  s.addSlot()
+  return s
+}
+
+function relClose(actual: number, expected: number, tol: number): void {
+  expect(Math.abs(actual - expected)).toBeLessThanOrEqual(tol * Math.max(1, Math.abs(expected)))
+}
+
+/** Seeded invented data (LCG), for property-style checks only. */
+function lcg(seed: number): () => number {
+  let s = seed >>> 0
+  return () => {
+    s = (Math.imul(s, 1664525) + 1013904223) >>> 0
+    return s / 2 ** 32
+  }
+}
+
+describe('accumulateRows', () => {
+  it('reproduces the statistics.md §8.1 moments of windows A, B and C to 1e-10', () => {
+    // check values: statistics.md §8.1 (numpy 2.4.6 two-pass; same digits from DuckDB 1.5.6 REGR_*)
+    const expected = [
+      { w: A, n: 40, xMean: 59.6, yMean: 56.05375, sxx: 47989.6, syy: 596.4211375, sxy: 5130.25, xMin: 1, xMax: 119 },
+      { w: B, n: 40, xMean: 59.725, yMean: 71.709, sxx: 47671.975, syy: 1181.22376, sxy: 7050.059, xMin: 2, xMax: 119 },
+      {
+        w: C,
+        n: 34,
+        xMean: 61.0294117647,
+        yMean: 90.2226470588,
+        sxx: 47684.9705882,
+        syy: 1023.79006176,
+        sxy: 6745.56735294,
+        xMin: 0,
+        xMax: 119,
+      },
+    ]
+    for (const e of expected) {
+      const s = oneSlot(false, false)
+      expect(accumulateRows(s, rowsOf(e.w.x, e.w.y))).toBe(0)
+      const m = slotMoments(s, 0)
+      expect(m.n).toBe(e.n)
+      expect(m.xMin).toBe(e.xMin)
+      expect(m.xMax).toBe(e.xMax)
+      // the table rounds C's values to 12 significant digits
+      const tol = e.w === C ? 1e-11 : 1e-10
+      for (const k of ['xMean', 'yMean', 'sxx', 'syy', 'sxy'] as const) relClose(m[k], e[k], tol)
+    }
+  })
+
+  it('gives the same bits as addRow and addLagRow when rows of several slots interleave', () => {
+    const rnd = lcg(7)
+    const slots = new MomentSlots({ weighted: false, trackLag: true })
+    const refs: Moments[] = []
+    for (let k = 0; k < 5; k++) {
+      slots.addSlot()
+      refs.push(emptyMoments(true))
+    }
+    const n = 2000
+    const rows: RowColumns = {
+      length: n,
+      slot: new Int32Array(n),
+      x: new Float64Array(n),
+      y: new Float64Array(n),
+      weight: null,
+    }
+    const t = [0, 0, 0, 0, 0]
+    for (let i = 0; i < n; i++) {
+      const k = Math.floor(rnd() * 5)
+      t[k] = (t[k] as number) + rnd() * 3 // nondecreasing x per slot
+      rows.slot[i] = k
+      rows.x[i] = t[k] as number
+      rows.y[i] = 1000 + 0.2 * (t[k] as number) + rnd()
+      addRow(refs[k] as Moments, rows.x[i] as number, rows.y[i] as number)
+    }
+    accumulateRows(slots, rows)
+    for (let k = 0; k < 5; k++) expect(slotMoments(slots, k)).toStrictEqual(refs[k])
+  })
+
+  it('gives the same bits as the weighted addRow and the §8.8 check values to 1e-10', () => {
+    const s = oneSlot(true, true)
+    accumulateRows(s, rowsOf(A.x, A.y, A.w))
+    const m = slotMoments(s, 0)
+    expect(m).toStrictEqual(momentsOf(A.x, A.y, A.w, false))
+    expect(m.lag).toBeNull()
+    // check values: statistics.md §8.8 (numpy 2.4.6 average(weights=w); state vs weighted two-pass)
+    expect(m.wSum).toBe(131)
+    relClose(m.xMean, 61.1679389313, 1e-10)
+    relClose(m.yMean, 56.2680916031, 1e-10)
+    relClose(m.sxx, 159012.305344, 1e-10)
+    relClose(m.syy, 1959.2968229, 1e-10)
+    relClose(m.sxy, 16932.0019847, 1e-10)
+  })
+
+  it('leaves moments unchanged and counts 5 when the five invalid rows of §8 are added', () => {
+    // statistics.md §8 "Other checks": (10, NaN), (null, 50), (12, +∞), (−∞, 3), (5, null); null arrives as NaN
+    const badX = [10, Number.NaN, 12, Number.NEGATIVE_INFINITY, 5]
+    const badY = [Number.NaN, 50, Number.POSITIVE_INFINITY, 3, Number.NaN]
+    const x = [...A.x.slice(0, 20), ...badX, ...A.x.slice(20)]
+    const y = [...A.y.slice(0, 20), ...badY, ...A.y.slice(20)]
+    const s = oneSlot(false, true)
+    expect(accumulateRows(s, rowsOf(x, y))).toBe(5)
+    const m = slotMoments(s, 0)
+    expect(m.skipped).toBe(5)
+    expect({ ...m, skipped: 0 }).toStrictEqual(momentsOf(A.x, A.y))
+  })
+
+  it('skips rows whose weight is zero, negative or not finite', () => {
+    const s = oneSlot(true, false)
+    const x = [...A.x, 1, 2, 3, 4]
+    const y = [...A.y, 5, 6, 7, 8]
+    const w = [...A.w, 0, -1, Number.NaN, Number.POSITIVE_INFINITY]
+    expect(accumulateRows(s, rowsOf(x, y, w))).toBe(4)
+    const m = slotMoments(s, 0)
+    expect(m.skipped).toBe(4)
+    expect({ ...m, skipped: 0 }).toStrictEqual(momentsOf(A.x, A.y, A.w, false))
+  })
+
+  it('ignores rows whose slot id is negative', () => {
+    const s = oneSlot(false, false)
+    const rows = rowsOf([...A.x, 500], [...A.y, 1e6])
+    rows.slot[A.x.length] = -1
+    expect(accumulateRows(s, rows)).toBe(0)
+    expect(slotMoments(s, 0)).toStrictEqual(momentsOf(A.x, A.y, undefined, false))
+  })
+
+  it('keeps earlier slots intact when the store grows past its initial capacity', () => {
+    const slots = new MomentSlots({ weighted: false, trackLag: true })
+    const count = 300
+    for (let k = 0; k < count; k++) slots.addSlot()
+    for (let k = 0; k < count; k++) {
+      const rows = rowsOf(
+        A.x,
+        A.y.map((v) => v + k),
+      )
+      rows.slot.fill(k)
+      accumulateRows(slots, rows)
+    }
+    expect(slots.size).toBe(count)
+    for (const k of [0, 63, 64, 199, 299]) {
+      expect(slotMoments(slots, k)).toStrictEqual(
+        momentsOf(
+          A.x,
+          A.y.map((v) => v + k),
+        ),
+      )
+    }
+  })
+
+  it('throws when a weighted store gets no weight column', () => {
+    const s = oneSlot(true, false)
+    expect(() => accumulateRows(s, rowsOf(A.x, A.y))).toThrow(/weight column/)
+  })
+})
+
+describe('slotMoments', () => {
+  it('returns n = 0 with the skip count and an empty lag block when every row was rejected', () => {
+    const s = oneSlot(false, true)
+    accumulateRows(s, rowsOf([1, 2], [Number.NaN, Number.POSITIVE_INFINITY]))
+    const m = slotMoments(s, 0)
+    expect(m).toStrictEqual({ ...emptyMoments(true), skipped: 2 })
+  })
+
+  it('returns a copy that later rows do not change', () => {
+    const s = oneSlot(false, false)
+    accumulateRows(s, rowsOf(B.x.slice(0, 10), B.y.slice(0, 10)))
+    const before = slotMoments(s, 0)
+    accumulateRows(s, rowsOf(B.x.slice(10), B.y.slice(10)))
+    expect(before.n).toBe(10)
+    expect(slotMoments(s, 0).n).toBe(40)
+  })
+
+  it('throws a RangeError for a slot that is not in use', () => {
+    const s = oneSlot(false, false)
+    expect(() => slotMoments(s, 1)).toThrow(RangeError)
+  })
+})
