@@ -21,6 +21,11 @@ export interface LockHolder {
   /** ISO 8601 UTC time the lock was taken. */
   readonly startedAt: string
   readonly runId: string
+  /**
+   * Start time of the holder process in kernel clock ticks since boot (Linux `/proc/<pid>/stat`
+   * field 22); absent elsewhere. Tells a live holder from an unrelated process that reused its pid.
+   */
+  readonly procStart?: string
 }
 
 /** Options of `acquireRunLock`. */
@@ -66,8 +71,15 @@ export function runLockPath(root: string): string {
  * and a live lock is never removed. A guard left by a process killed inside this microsecond step
  * is itself removed once its pid is gone (or after `staleAfterMs`).
  *
- * Known limit: pid reuse. If the dead holder's pid now belongs to an unrelated live process, the
- * lock looks live; the waiter times out with a message naming the pid and the fix.
+ * Pid reuse (a container restarted with the same hostname often gets the same small pids): on
+ * Linux the lock also records the holder's process start time, so a live process that merely
+ * reuses the pid is recognised and the lock is taken over. Elsewhere a reused pid makes the lock
+ * look live; the waiter times out with a message naming the pid and the fix.
+ *
+ * Other hosts: their pids cannot be checked, so the holder refreshes the lock file's mtime every
+ * `heartbeatMs`, and a lock whose mtime is older than `staleAfterMs` is taken over. This relies on
+ * clocks agreeing within `staleAfterMs` and on the holder not stalling that long (for example a
+ * suspended VM); choose it well above `heartbeatMs` (e.g. 10×).
  *
  * @throws TempFailError (`SLOPESHIFT_LOCKED`, exit 75) when a live holder keeps the lock past `waitMs`.
  * @throws CantCreateError when the state folder cannot be written.
@@ -77,7 +89,14 @@ export async function acquireRunLock(root: string, options: RunLockOptions): Pro
   const host = options.hostname ?? osHostname()
   const lockPath = runLockPath(root)
   const deadline = Date.now() + options.waitMs
-  const me: LockHolder = { pid: process.pid, hostname: host, startedAt: new Date().toISOString(), runId: options.runId }
+  const procStart = await processStart(process.pid)
+  const me: LockHolder = {
+    pid: process.pid,
+    hostname: host,
+    startedAt: new Date().toISOString(),
+    runId: options.runId,
+    ...(procStart === null ? {} : { procStart }),
+  }
   const tmp = `${lockPath}.${process.pid}-${randomBytes(6).toString('hex')}.tmp`
   try {
     await ensureDir(stateDir(root))
@@ -151,7 +170,8 @@ export async function readHolder(lockPath: string): Promise<LockHolder | 'gone' 
       'runId' in raw &&
       typeof raw.runId === 'string'
     ) {
-      return { pid: raw.pid, hostname: raw.hostname, startedAt: raw.startedAt, runId: raw.runId }
+      const holder = { pid: raw.pid, hostname: raw.hostname, startedAt: raw.startedAt, runId: raw.runId }
+      return 'procStart' in raw && typeof raw.procStart === 'string' ? { ...holder, procStart: raw.procStart } : holder
     }
   } catch {
     // fall through
@@ -176,7 +196,12 @@ async function isStale(
   host: string,
   staleAfterMs: number | undefined,
 ): Promise<boolean> {
-  if (holder.hostname === host) return !isPidAlive(holder.pid)
+  if (holder.hostname === host) {
+    if (!isPidAlive(holder.pid)) return true
+    if (holder.procStart === undefined) return false
+    const start = await processStart(holder.pid)
+    return start !== null && start !== holder.procStart // the pid now belongs to another process
+  }
   if (staleAfterMs === undefined) return false
   try {
     return Date.now() - (await stat(path)).mtimeMs > staleAfterMs
@@ -222,8 +247,29 @@ async function takeOver(
   }
 }
 
+/**
+ * Start time of process `pid` in clock ticks since boot, from Linux `/proc/<pid>/stat` (field 22,
+ * counted after the parenthesised command name, which may itself hold spaces); null elsewhere.
+ */
+export async function processStart(pid: number): Promise<string | null> {
+  try {
+    const text = await readFile(`/proc/${pid}/stat`, 'utf8')
+    const fields = text.slice(text.lastIndexOf(')') + 2).split(' ')
+    const start = fields[19]
+    return start !== undefined && /^[0-9]+$/.test(start) ? start : null
+  } catch {
+    return null
+  }
+}
+
 function sameHolder(a: LockHolder, b: LockHolder): boolean {
-  return a.pid === b.pid && a.hostname === b.hostname && a.startedAt === b.startedAt && a.runId === b.runId
+  return (
+    a.pid === b.pid &&
+    a.hostname === b.hostname &&
+    a.startedAt === b.startedAt &&
+    a.runId === b.runId &&
+    a.procStart === b.procStart
+  )
 }
 
 function lockedError(root: string, lockPath: string, holder: LockHolder | 'unreadable', waitMs: number): TempFailError {

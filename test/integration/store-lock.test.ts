@@ -4,7 +4,7 @@ import { hostname, tmpdir } from 'node:os'
 import { join, resolve } from 'node:path'
 import { pathToFileURL } from 'node:url'
 import { afterEach, beforeEach, describe, expect, it } from 'vitest'
-import { acquireRunLock, readHolder, runLockPath } from '../../src/store/lock.js'
+import { acquireRunLock, processStart, readHolder, runLockPath } from '../../src/store/lock.js'
 
 const projectRoot = resolve(import.meta.dirname, '../..')
 let root: string
@@ -116,6 +116,28 @@ describe('acquireRunLock', () => {
     expect(await readHolder(runLockPath(root))).toMatchObject({ pid: process.pid, runId: 'run-new' })
     await release()
   })
+
+  it.skipIf(process.platform !== 'linux')(
+    'takes over a lock whose pid was reused by another live process (Linux)',
+    async () => {
+      const child = spawn(process.execPath, ['-e', 'setTimeout(() => {}, 20000)'], { stdio: 'ignore' })
+      try {
+        const pid = child.pid ?? -1
+        const start = await processStart(pid)
+        expect(start).toMatch(/^[0-9]+$/)
+        const holder = { pid, hostname: hostname(), startedAt: '2026-01-01T00:00:00.000Z', runId: 'live' }
+        await writeLock({ ...holder, procStart: start })
+        const err = await acquireRunLock(root, { runId: 'r', waitMs: 30, pollMs: 10 }).catch((e: unknown) => e)
+        expect(err).toMatchObject({ code: 'SLOPESHIFT_LOCKED', exitCode: 75 })
+        await writeLock({ ...holder, procStart: String(Number(start) + 1) }) // same pid, another process
+        const release = await acquireRunLock(root, { runId: 'r', waitMs: 0 })
+        expect(await readHolder(runLockPath(root))).toMatchObject({ runId: 'r', pid: process.pid })
+        await release()
+      } finally {
+        child.kill()
+      }
+    },
+  )
 
   it('takes over a lock from another host only after its heartbeat is older than staleAfterMs', async () => {
     await writeLock({ pid: 1, hostname: 'cold-store-07', startedAt: '2026-01-01T00:00:00.000Z', runId: 'remote' })
