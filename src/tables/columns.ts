@@ -10,6 +10,11 @@ import type { FitRow, RunRow, ShiftRow } from '../types.js'
 /** DuckDB column types used by the tables; `TIMESTAMPTZ` lands in Parquet as TIMESTAMP_MICROS, adjusted to UTC. */
 export type ColumnType = 'VARCHAR' | 'BIGINT' | 'DOUBLE' | 'BOOLEAN' | 'TIMESTAMPTZ'
 
+/** The type name DuckDB's DESCRIBE prints for a column type (`TIMESTAMPTZ` → `TIMESTAMP WITH TIME ZONE`). */
+export function duckdbTypeName(type: ColumnType): string {
+  return type === 'TIMESTAMPTZ' ? 'TIMESTAMP WITH TIME ZONE' : type
+}
+
 /** One published column. */
 export interface ColumnSpec {
   /** Published column name (snake_case; key columns keep their configured names). */

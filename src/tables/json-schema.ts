@@ -6,13 +6,13 @@
  */
 import {
   type ColumnSpec,
+  duckdbTypeName,
   keyColumnDescription,
   partitionFileName,
   type TableName,
   tableColumns,
   tableSpecs,
 } from './columns.js'
-import { duckdbTypeName } from './read.js'
 
 /** A JSON value (the generated schemas are plain JSON). */
 export type JsonValue = string | number | boolean | null | readonly JsonValue[] | { readonly [key: string]: JsonValue }

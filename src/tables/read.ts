@@ -7,15 +7,7 @@ import { readdir, stat } from 'node:fs/promises'
 import { join } from 'node:path'
 import type { DuckDBConnection } from '@duckdb/node-api'
 import { DataError, IoError } from '../errors.js'
-import {
-  type ColumnSpec,
-  type ColumnType,
-  orderColumns,
-  type TableName,
-  type TableRows,
-  tableColumns,
-  tableSpecs,
-} from './columns.js'
+import { type ColumnSpec, orderColumns, type TableName, type TableRows, tableColumns, tableSpecs } from './columns.js'
 import { quoteIdent, quoteLiteral, withConnection } from './duckdb.js'
 import { errnoCode, isErrno } from './publish.js'
 
@@ -23,11 +15,6 @@ import { errnoCode, isErrno } from './publish.js'
 export interface ReadTableOptions {
   /** A DuckDB connection to use (the caller keeps owning it); without one a short-lived instance is opened. */
   readonly connection?: DuckDBConnection
-}
-
-/** The type name DuckDB's DESCRIBE prints for a column type (`TIMESTAMPTZ` → `TIMESTAMP WITH TIME ZONE`). */
-export function duckdbTypeName(type: ColumnType): string {
-  return type === 'TIMESTAMPTZ' ? 'TIMESTAMP WITH TIME ZONE' : type
 }
 
 /** One column of a Parquet file as DuckDB describes it. */

@@ -31,6 +31,7 @@ import { type SeriesKey, seriesId } from '../types.js'
 import {
   type ColumnSpec,
   type ColumnType,
+  duckdbTypeName,
   identityColumns,
   orderColumns,
   partitionFileName,
@@ -42,7 +43,7 @@ import {
 } from './columns.js'
 import { quoteIdent, quoteLiteral, uniqueTempTableName, withConnection } from './duckdb.js'
 import { errnoCode, makeDir, type PendingFile, removeQuietly, renameAll, syncFile } from './publish.js'
-import { describeParquet, duckdbTypeName } from './read.js'
+import { describeParquet } from './read.js'
 
 /** Parquet compression codec (config `output.compression`). */
 export type Compression = 'zstd' | 'snappy' | 'gzip' | 'uncompressed'
