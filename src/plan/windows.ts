@@ -4,7 +4,7 @@
  */
 import type { LagBlock, Moments } from '../kernel/moments.js'
 import type { WindowSpec } from '../kernel/window.js'
-import { windowEndOf } from '../kernel/window.js'
+import { windowEndOf, windowStartOf } from '../kernel/window.js'
 import type { PartialMoments, SeriesKey } from '../types.js'
 import { seriesId } from '../types.js'
 import { comparePaths } from './files.js'
@@ -76,6 +76,18 @@ export function affectedWindows(
     }
   }
   return [...out.values()].sort((a, b) => comparePaths(a.seriesId, b.seriesId) || a.windowStartMs - b.windowStartMs)
+}
+
+/**
+ * Starts (epoch ms) of every window that overlaps `[fromMs, toMs)`, in order: the window holding
+ * `fromMs` first, then each next window while it starts before `toMs` (`run --from/--to`). Empty
+ * when `toMs ≤ fromMs`. The caller bounds the range; each window costs one step.
+ */
+export function windowStartsBetween(spec: WindowSpec, fromMs: number, toMs: number): number[] {
+  const out: number[] = []
+  if (!(toMs > fromMs)) return out
+  for (let start = windowStartOf(spec, fromMs); start < toMs; start = windowEndOf(spec, start)) out.push(start)
+  return out
 }
 
 /** True when two states are identical in every field, bit for bit (`Object.is`: NaN equals NaN, 0 ≠ −0). */

@@ -124,6 +124,14 @@ export function partialsFilePath(root: string, sourcePath: string, fingerprint: 
   return join(partialsDir(root), `${pathHash}-${fingerprint.slice(0, 16)}.parquet`)
 }
 
+/** The partials files of ledger entries (changed or deleted files' old partials, or all committed ones). */
+export function ledgerPartialsFiles(
+  root: string,
+  entries: readonly Pick<LedgerEntry, 'path' | 'fingerprint'>[],
+): string[] {
+  return entries.map((e) => partialsFilePath(root, e.path, e.fingerprint))
+}
+
 /**
  * Writes the partials of one input file to `target` atomically: DuckDB writes
  * `<target>.tmp-<pid>` (zstd Parquet), the tmp file is fsynced and renamed over `target`, and the

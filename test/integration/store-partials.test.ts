@@ -6,7 +6,14 @@ import { afterEach, beforeEach, describe, expect, it } from 'vitest'
 import type { Moments } from '../../src/kernel/moments.js'
 import { addRow, emptyMoments } from '../../src/kernel/moments.js'
 import { sameMoments } from '../../src/plan/windows.js'
-import { gcPartials, partialsColumns, partialsFilePath, readPartials, writePartials } from '../../src/store/partials.js'
+import {
+  gcPartials,
+  ledgerPartialsFiles,
+  partialsColumns,
+  partialsFilePath,
+  readPartials,
+  writePartials,
+} from '../../src/store/partials.js'
 import type { PartialMoments } from '../../src/types.js'
 
 let root: string
@@ -183,6 +190,7 @@ describe('gcPartials', () => {
     const ledger = {
       files: [{ path: '/lake/a.parquet', size: 1, mtimeMs: 1, fingerprint: '1'.repeat(64), runId: 'r' }],
     }
+    expect(ledgerPartialsFiles(root, ledger.files)).toEqual([keep])
     const removed = await gcPartials(root, ledger)
     expect(removed.sort()).toEqual([basename(gone), basename(old), `${basename(keep)}.tmp-4242`].sort())
     expect(await readdir(join(root, '_state', 'partials'))).toEqual([basename(keep)])

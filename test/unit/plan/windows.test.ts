@@ -2,7 +2,7 @@ import { describe, expect, it } from 'vitest'
 import type { Moments } from '../../../src/kernel/moments.js'
 import { addRow, emptyMoments } from '../../../src/kernel/moments.js'
 import { parseWindow } from '../../../src/kernel/window.js'
-import { affectedWindows, sameMoments } from '../../../src/plan/windows.js'
+import { affectedWindows, sameMoments, windowStartsBetween } from '../../../src/plan/windows.js'
 import type { PartialMoments } from '../../../src/types.js'
 
 const hourly = parseWindow('1h')
@@ -97,5 +97,22 @@ describe('sameMoments', () => {
     expect(sameMoments({ ...a, lag: null }, { ...a, lag: null })).toBe(true)
     expect(sameMoments({ ...a, sxy: 0 }, { ...a, sxy: -0 })).toBe(false)
     expect(sameMoments(a, moments([[1, 2]]))).toBe(true)
+  })
+})
+
+describe('windowStartsBetween', () => {
+  it('lists every window overlapping the range, including the one holding its start', () => {
+    expect(windowStartsBetween(hourly, 10 * H + 5, 13 * H)).toEqual([10 * H, 11 * H, 12 * H])
+    expect(windowStartsBetween(hourly, 10 * H, 10 * H + 1)).toEqual([10 * H])
+  })
+
+  it('is empty when the range is empty and follows calendar months', () => {
+    expect(windowStartsBetween(hourly, 5 * H, 5 * H)).toEqual([])
+    const starts = windowStartsBetween(monthly, Date.UTC(2026, 1, 10), Date.UTC(2026, 3, 1))
+    expect(starts.map((t) => new Date(t).toISOString())).toEqual([
+      '2026-01-31T23:00:00.000Z',
+      '2026-02-28T23:00:00.000Z',
+      '2026-03-31T22:00:00.000Z',
+    ])
   })
 })
