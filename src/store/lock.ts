@@ -110,16 +110,17 @@ export async function acquireRunLock(root: string, options: RunLockOptions): Pro
   try {
     for (;;) {
       try {
-        await link(tmp, lockPath)
-        break
-      } catch (err) {
-        if (!hasCode(err, 'EEXIST')) throw err
+        if (await createExclusive(tmp, lockPath)) break
+      } catch (cause) {
+        throw new CantCreateError(`cannot create the run lock ${lockPath}; check permissions on the output root`, {
+          context: { file: lockPath },
+          cause,
+        })
       }
       const holder = await readHolder(lockPath)
       if (holder === 'gone') continue
       if (holder !== 'unreadable' && (await isStale(lockPath, holder, host, options.staleAfterMs))) {
-        await takeOver(lockPath, holder, host, options.staleAfterMs)
-        continue
+        if (await takeOver(lockPath, holder, host, options.staleAfterMs)) continue
       }
       if (Date.now() >= deadline) throw lockedError(root, lockPath, holder, options.waitMs)
       await sleep(Math.max(1, Math.min(pollMs, deadline - Date.now())))
@@ -211,30 +212,34 @@ async function isStale(
   }
 }
 
+/**
+ * Removes the stale lock `stale` under the takeover guard (see `acquireRunLock`). True when the
+ * caller should retry at once (guard held, or a dead guard cleared); false when another waiter
+ * holds the guard, so the caller waits a poll interval.
+ */
 async function takeOver(
   lockPath: string,
   stale: LockHolder,
   host: string,
   staleAfterMs: number | undefined,
-): Promise<void> {
+): Promise<boolean> {
   const guard = `${lockPath}.takeover`
   const guardTmp = `${guard}.${process.pid}-${randomBytes(6).toString('hex')}.tmp`
   const mine: LockHolder = { pid: process.pid, hostname: host, startedAt: new Date().toISOString(), runId: 'takeover' }
   await writeFile(guardTmp, `${JSON.stringify(mine)}\n`, { flag: 'wx' })
-  try {
-    await link(guardTmp, guard)
-  } catch (err) {
-    await unlink(guardTmp).catch(() => undefined)
-    if (!hasCode(err, 'EEXIST')) throw err
+  const created = await createExclusive(guardTmp, guard).finally(() => unlink(guardTmp).catch(() => undefined))
+  if (!created) {
     // Someone else is taking over right now; if that someone died mid-step, clear its guard.
     const other = await readHolder(guard)
     if (typeof other === 'object' && (await isStale(guard, other, host, staleAfterMs))) {
       const again = await readHolder(guard)
-      if (typeof again === 'object' && sameHolder(again, other)) await unlink(guard).catch(() => undefined)
+      if (typeof again === 'object' && sameHolder(again, other)) {
+        await unlink(guard).catch(() => undefined)
+        return true
+      }
     }
-    return
+    return false
   }
-  await unlink(guardTmp).catch(() => undefined)
   try {
     const current = await readHolder(lockPath)
     if (typeof current === 'object' && sameHolder(current, stale)) {
@@ -244,6 +249,29 @@ async function takeOver(
     }
   } finally {
     await unlink(guard).catch(() => undefined)
+  }
+  return true
+}
+
+/**
+ * Creates `target` holding the bytes of `tmp`, failing if `target` exists: `link` (atomic, full
+ * content at once). Filesystems without hard links fall back to an O_EXCL (`wx`) create plus write,
+ * where a waiter may briefly see an empty lock (read as `unreadable`: it waits). False on EEXIST.
+ */
+async function createExclusive(tmp: string, target: string): Promise<boolean> {
+  try {
+    await link(tmp, target)
+    return true
+  } catch (err) {
+    if (hasCode(err, 'EEXIST')) return false
+    if (!hasCode(err, 'EPERM', 'ENOTSUP', 'ENOSYS', 'EOPNOTSUPP', 'EXDEV')) throw err
+  }
+  try {
+    await writeFile(target, await readFile(tmp), { flag: 'wx' })
+    return true
+  } catch (err) {
+    if (hasCode(err, 'EEXIST')) return false
+    throw err
   }
 }
 

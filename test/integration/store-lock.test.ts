@@ -117,6 +117,17 @@ describe('acquireRunLock', () => {
     await release()
   })
 
+  it('clears a takeover guard left by a process killed mid-takeover, then takes over', async () => {
+    const pid = await deadPid()
+    const dead = { pid, hostname: hostname(), startedAt: '2026-01-01T00:00:00.000Z', runId: 'killed' }
+    await writeLock(dead)
+    await writeFile(`${runLockPath(root)}.takeover`, JSON.stringify({ ...dead, runId: 'takeover' }))
+    const release = await acquireRunLock(root, { runId: 'after', waitMs: 1000, pollMs: 5 })
+    expect(await readHolder(runLockPath(root))).toMatchObject({ runId: 'after' })
+    expect(await readHolder(`${runLockPath(root)}.takeover`)).toBe('gone')
+    await release()
+  })
+
   it.skipIf(process.platform !== 'linux')(
     'takes over a lock whose pid was reused by another live process (Linux)',
     async () => {
