@@ -66,6 +66,7 @@ export const digestSchema = z
     xUnit: z.enum(['ms', 's', 'minute', 'hour', 'day', 'week']).describe('Slopes are per this unit'),
     yUnit: z.string().nullable().describe('Unit label of the metric, when configured'),
     keyColumns: z.array(z.string()),
+    timeZone: z.string().describe('IANA time zone the text shows window bounds in (the window time zone)'),
     windows: z.array(digestWindowSchema).describe('Distinct windows tested in this run, oldest first'),
     counts: verdictCountsSchema,
     shiftTotal: count.describe('Shifts to report after cooldown; `shifts` lists the top N of them'),

@@ -33,7 +33,9 @@ export interface DigestInput {
   /** Slopes are per this unit. */
   readonly xUnit: XUnit
   /** Unit label of the metric (e.g. `kW`); omitted from the text when absent. */
-  readonly yUnit?: string
+  readonly yUnit?: string | null
+  /** IANA time zone of the windows (config `window.timeZone`); the text shows window bounds in it. Default UTC. */
+  readonly timeZone?: string
   /** Every `shifts/` row the run wrote (all verdicts): verdict counts and tested windows come from these. */
   readonly rows: readonly ShiftRow[]
   /**
@@ -46,7 +48,7 @@ export interface DigestInput {
   /** Send a digest when there is no shift to report (and at least one series was tested). */
   readonly sendAllClear: boolean
   /** Absolute URL of this run's HTML report; pass it only once the report file exists. */
-  readonly reportUrl?: string
+  readonly reportUrl?: string | null
 }
 
 /**
@@ -80,6 +82,7 @@ export function buildDigest(input: DigestInput): Digest | null {
     xUnit: input.xUnit,
     yUnit: input.yUnit ?? null,
     keyColumns: [...input.keyColumns],
+    timeZone: input.timeZone ?? 'UTC',
     windows: distinctWindows(input.rows),
     counts,
     shiftTotal: notify.length,
@@ -193,7 +196,7 @@ export function renderText(digest: Digest): string {
   lines.push(`${countLine}${held} · ${windowsLabel(digest)} · run ${digest.runId}`)
   for (const s of digest.shifts) {
     lines.push('')
-    lines.push(`${s.rank}. ${keyLabel(s.key)} · ${rangeLabel(s.windowStart, s.windowEnd)}`)
+    lines.push(`${s.rank}. ${keyLabel(s.key)} · ${rangeLabel(s.windowStart, s.windowEnd, digest.timeZone)}`)
     lines.push(`   ${s.summary}`)
     const unit = digest.yUnit === null ? `per ${digest.xUnit}` : `${digest.yUnit} per ${digest.xUnit}`
     const parts = [`slope ${formatNumber(s.slopeBefore)} → ${formatNumber(s.slopeAfter)} ${unit}`]
@@ -259,17 +262,39 @@ function windowsLabel(digest: Digest): string {
   const first = digest.windows[0]
   const last = digest.windows[digest.windows.length - 1]
   if (first === undefined || last === undefined) return 'no windows tested'
-  if (digest.windows.length === 1) return `window ${rangeLabel(first.start, first.end)}`
-  return `${digest.windows.length} windows ${rangeLabel(first.start, last.end)}`
+  if (digest.windows.length === 1) return `window ${rangeLabel(first.start, first.end, digest.timeZone)}`
+  return `${digest.windows.length} windows ${rangeLabel(first.start, last.end, digest.timeZone)}`
 }
 
-/** `2026-11-23 → 2026-11-30` for midnight-aligned UTC bounds, else `2026-11-23 06:00Z → 12:00Z`-style. */
-function rangeLabel(startIso: string, endIso: string): string {
-  const short = (iso: string): string => {
-    if (iso.endsWith('T00:00:00.000Z')) return iso.slice(0, 10)
-    return `${iso.slice(0, 10)} ${iso.slice(11, 16)}Z`
-  }
-  return `${short(startIso)} → ${short(endIso)}`
+/**
+ * Window bounds in the digest's time zone: `2026-11-23 → 2026-11-30` when both are local midnights,
+ * else `2026-11-23 06:00 → 12:00`; a zone other than UTC is named (`… Europe/Berlin`), and UTC is
+ * named only when times are shown. The end is exclusive, as everywhere in slopeshift.
+ */
+function rangeLabel(startIso: string, endIso: string, timeZone: string): string {
+  const a = localDateTime(startIso, timeZone)
+  const b = localDateTime(endIso, timeZone)
+  const midnight = a.time === '00:00' && b.time === '00:00'
+  let text: string
+  if (midnight) text = `${a.date} → ${b.date}`
+  else if (a.date === b.date) text = `${a.date} ${a.time} → ${b.time}`
+  else text = `${a.date} ${a.time} → ${b.date} ${b.time}`
+  if (timeZone !== 'UTC') return `${text} ${timeZone}`
+  return midnight ? text : `${text} UTC`
+}
+
+function localDateTime(iso: string, timeZone: string): { date: string; time: string } {
+  const parts = new Intl.DateTimeFormat('en-CA', {
+    timeZone,
+    year: 'numeric',
+    month: '2-digit',
+    day: '2-digit',
+    hour: '2-digit',
+    minute: '2-digit',
+    hourCycle: 'h23',
+  }).formatToParts(new Date(iso))
+  const get = (type: Intl.DateTimeFormatPartTypes): string => parts.find((p) => p.type === type)?.value ?? '??'
+  return { date: `${get('year')}-${get('month')}-${get('day')}`, time: `${get('hour')}:${get('minute')}` }
 }
 
 function keyLabel(key: Readonly<Record<string, string | null>>): string {

@@ -77,15 +77,9 @@ export async function flushOutbox(root: string, config: FlushConfig, deps: Deliv
       down.add(notice.webhook)
     }
   }
-  return {
-    sent,
-    rejected,
-    failed,
-    skipped,
-    pending: queue.length - sent,
-    deadLettered: dead.length,
-    notices,
-  }
+  const counts = { sent, rejected, failed, skipped, pending: queue.length - sent, deadLettered: dead.length }
+  deps.log.info(counts, 'outbox flushed')
+  return { ...counts, notices }
 }
 
 /**

@@ -223,6 +223,22 @@ describe('renderText', () => {
     expect(clear).not.toContain('Report:')
   })
 
+  it('shows window bounds in the window time zone, with times when they are not midnights', () => {
+    // Berlin local day 2026-11-30 runs from 23:00Z the evening before (UTC+1 in winter).
+    const berlinDay = shifted(['north-7', 'c1'], 0, 0.5, 1.7, 0.01, {
+      window_start: Date.UTC(2026, 10, 29, 23),
+      window_end: Date.UTC(2026, 10, 30, 23),
+    })
+    const berlin = renderText(buildDigest({ ...base, timeZone: 'Europe/Berlin', rows: [berlinDay] }) ?? fail())
+    expect(berlin).toContain('1. site=north-7, compressor=c1 · 2026-11-30 → 2026-12-01 Europe/Berlin\n')
+    const sixHours = shifted(['north-7', 'c1'], 0, 0.5, 1.7, 0.01, {
+      window_start: Date.UTC(2026, 10, 30, 6),
+      window_end: Date.UTC(2026, 10, 30, 12),
+    })
+    const utc = renderText(buildDigest({ ...base, rows: [sixHours] }) ?? fail())
+    expect(utc).toContain('· 2026-11-30 06:00 → 12:00 UTC\n')
+  })
+
   it('mentions shifts held by cooldown in the counts line', () => {
     const a = shifted(['north-7', 'c3'], 1, 0.5, 1.5, 0.01)
     const b = shifted(['north-7', 'c4'], 1, 0.5, 1.7, 0.001)
