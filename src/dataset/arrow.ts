@@ -75,6 +75,7 @@ export async function readArrowPartials(
   const stats: ReadStats = { file: file.path, rows: 0, skipped: 0 }
   const name = basename(file.path)
   let handle: FileHandle | null = null
+  let reader: RecordBatchReader | null = null
   try {
     options.signal?.throwIfAborted()
     handle = await open(file.path, 'r')
@@ -84,7 +85,7 @@ export async function readArrowPartials(
         context: { file: file.path },
       })
     }
-    const reader = await openReader(handle, file.path)
+    reader = await openReader(handle, file.path)
     const schema = reader.schema as Schema | null | undefined
     if (schema === null || schema === undefined || schema.fields.length === 0) {
       throw corrupt(file.path, 'no schema found')
@@ -106,17 +107,40 @@ export async function readArrowPartials(
     }
     return { partials: acc.finish(), stats }
   } finally {
+    if (reader !== null) await cancelQuietly(reader)
     if (handle !== null) await closeQuietly(handle)
   }
 }
 
+/** "ARROW1": the first bytes of the IPC file format (the stream format has no magic). */
+const fileMagic = [0x41, 0x52, 0x52, 0x4f, 0x57, 0x31]
+
+/**
+ * Opens the right reader: the file format through random access on the handle (it reads the
+ * footer, then one batch at a time), the stream format through a buffered read stream (1 MiB
+ * chunks; reading a stream through the handle costs several small reads per message).
+ */
 async function openReader(handle: FileHandle, path: string): Promise<RecordBatchReader> {
   try {
-    const reader = await RecordBatchReader.from(handle)
+    const head = new Uint8Array(fileMagic.length)
+    const { bytesRead } = await handle.read(head, 0, head.length, 0)
+    const isFile = bytesRead === head.length && fileMagic.every((b, i) => head[i] === b)
+    const reader = isFile
+      ? await RecordBatchReader.from(handle)
+      : await RecordBatchReader.from(handle.createReadStream({ start: 0, highWaterMark: 1 << 20, autoClose: false }))
     await reader.open()
     return reader
   } catch (err) {
     throw corrupt(path, err)
+  }
+}
+
+/** Releases the reader's source (a read stream or the handle) also when the read stopped early. */
+async function cancelQuietly(reader: RecordBatchReader): Promise<void> {
+  try {
+    await reader.cancel()
+  } catch {
+    // the source is already released
   }
 }
 
