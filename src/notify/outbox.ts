@@ -8,13 +8,14 @@
  * _state/outbox/sent/<file>          delivered: moved here (one rename) after a 2xx
  * _state/outbox/dead-letter/<file>   given up: moved here once older than notify.maxAgeHours
  * ```
+ * `sent/` is what lets a rerun recognise a digest it already delivered; {@link pruneSent} trims it.
  * Crash safety: every state change is one atomic write or one rename. A crash between a 2xx and
  * the rename leaves the notice pending; the next run sends it again with the same `webhook-id` and
  * the same body, which the receiver can drop. So delivery is at-least-once, and effectively once
  * for a receiver that dedupes on `webhook-id` (or `Idempotency-Key`).
  */
 import { createHash } from 'node:crypto'
-import { readdir, readFile, stat } from 'node:fs/promises'
+import { readdir, readFile, rm, stat } from 'node:fs/promises'
 import { join } from 'node:path'
 import { z } from 'zod'
 import type { Logger } from '../log.js'
@@ -172,6 +173,32 @@ export async function moveExpiredToDeadLetter(
     moved.push({ ...notice, file: join(deadLetterDir(root), name) })
   }
   return moved
+}
+
+/**
+ * Deletes delivered notices queued more than `keepHours` ago from `sent/`, so the folder does not
+ * grow without bound. Cooldown state still stops a shift from being notified twice; what pruning
+ * gives up is only the outbox's own duplicate check for digests older than `keepHours` (a rerun of
+ * such an old run could send its all-clear again). Returns how many files were removed.
+ */
+export async function pruneSent(root: string, nowMs: number, keepHours: number): Promise<number> {
+  let names: string[]
+  try {
+    names = await readdir(sentDir(root))
+  } catch (err) {
+    if (isNotFound(err)) return 0
+    throw err
+  }
+  let removed = 0
+  for (const name of names.sort()) {
+    if (!name.endsWith('.json')) continue
+    const file = join(sentDir(root), name)
+    const parsed = noticeSchema.safeParse(parseJson(await readFile(file, 'utf8')))
+    if (parsed.success && nowMs - parsed.data.createdAtMs <= keepHours * 3_600_000) continue
+    await rm(file, { force: true })
+    removed += 1
+  }
+  return removed
 }
 
 async function exists(path: string): Promise<boolean> {

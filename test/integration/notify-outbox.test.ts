@@ -28,6 +28,7 @@ import {
   noticeFileName,
   outboxDir,
   pending,
+  pruneSent,
   sentDir,
 } from '../../src/notify/outbox.js'
 import { shifted } from '../helpers/shift-rows.js'
@@ -177,6 +178,20 @@ describe('moveExpiredToDeadLetter', () => {
   it('keeps a notice exactly maxAgeHours old', async () => {
     await enqueue(root, notice())
     expect(await moveExpiredToDeadLetter(root, createdAtMs + 72 * hourMs, 72, capturingLogger())).toEqual([])
+  })
+})
+
+describe('pruneSent', () => {
+  it('deletes delivered notices older than keepHours and keeps newer ones', async () => {
+    const old = notice('ops-chat', 1, createdAtMs)
+    const recent = notice('ops-chat', 2, createdAtMs + 48 * hourMs)
+    for (const n of [old, recent]) {
+      await enqueue(root, n)
+      await markSent(root, n)
+    }
+    expect(await pruneSent(root, createdAtMs + 24 * 30 * hourMs + hourMs, 24 * 30)).toBe(1)
+    expect(await readdir(sentDir(root))).toEqual([noticeFileName(recent)])
+    expect(await pruneSent(join(root, 'never-run'), createdAtMs, 1)).toBe(0)
   })
 })
 
