@@ -29,7 +29,7 @@
  * In every case the next run redoes the uncommitted work from the committed ledger and, being
  * deterministic, converges to the same tables.
  */
-import { copyFile, link, open, readdir, readFile, rename, rm, unlink } from 'node:fs/promises'
+import { copyFile, link, open, readdir, readFile, rename, rm, rmdir, unlink } from 'node:fs/promises'
 import { dirname, join, relative, sep } from 'node:path'
 import { CantCreateError, DataError } from '../errors.js'
 import { comparePaths } from '../plan/files.js'
@@ -90,7 +90,8 @@ export async function createStaging(root: string, runId: string): Promise<string
 /**
  * Moves every file staged under `staging` into place under `root` (creating folders), and deletes
  * the published files listed in `remove` (root-relative, `/`-separated; for example partitions
- * dropped by retention). Keeps backups and the manifest so `recoverStaging` can undo the changes if
+ * dropped by retention or windows left without data); listed files that do not exist are skipped,
+ * and folders a removal leaves empty are removed too. Keeps backups and the manifest so `recoverStaging` can undo the changes if
  * the ledger is not committed; call `discardStaging` after `commitLedger`.
  *
  * Order and durability: backups, then the fsynced manifest, then the renames in path order, then an
@@ -111,7 +112,9 @@ export async function publish(
     const removals = [...new Set(options.remove ?? [])].filter((p) => !stagedSet.has(p)).sort(comparePaths)
     const changes: PublishChange[] = []
     for (const path of staged) changes.push({ path, op: 'put', hadPrior: await backup(root, staging, path) })
-    for (const path of removals) changes.push({ path, op: 'remove', hadPrior: await backup(root, staging, path) })
+    for (const path of removals) {
+      if (await backup(root, staging, path)) changes.push({ path, op: 'remove', hadPrior: true }) // else nothing to remove
+    }
     await writeManifest(staging, changes)
 
     const touched = new Set<string>()
@@ -120,12 +123,13 @@ export async function publish(
       if (c.op === 'put') {
         await ensureDir(dirname(target))
         await rename(join(staging, c.path), target)
-      } else if (c.hadPrior) {
+      } else {
         await unlink(target).catch(ignoreMissing)
       }
       touched.add(dirname(target))
     }
-    for (const dir of [...touched].sort(comparePaths)) await fsyncDir(dir)
+    for (const c of changes) if (c.op === 'remove') await pruneEmptyDirs(root, dirname(join(root, c.path)), touched)
+    for (const dir of [...touched].sort(comparePaths)) await fsyncDir(dir).catch(ignoreMissing)
     return { changes }
   } catch (cause) {
     if (cause instanceof CantCreateError) throw cause
@@ -277,6 +281,20 @@ async function listFiles(dir: string): Promise<string[]> {
     out.push(relative(dir, join(parent, e.name)).split(sep).join('/'))
   }
   return out.sort(comparePaths)
+}
+
+/** Removes `dir` and its parents up to (not including) `root` while they are empty; notes their parents. */
+async function pruneEmptyDirs(root: string, dir: string, touched: Set<string>): Promise<void> {
+  for (let d = dir; d !== root && d.startsWith(root + sep); d = dirname(d)) {
+    try {
+      await rmdir(d)
+    } catch (err) {
+      if (hasCode(err, 'ENOTEMPTY', 'EEXIST', 'ENOENT')) return
+      throw err
+    }
+    touched.delete(d)
+    touched.add(dirname(d))
+  }
 }
 
 async function readdirOrEmpty(dir: string): Promise<string[]> {

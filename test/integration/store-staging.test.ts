@@ -50,7 +50,7 @@ async function stageRun2(): Promise<string> {
 describe('publish', () => {
   it('moves every staged file into place and leaves no staging behind after the commit', async () => {
     const staging = await stageRun2()
-    const result = await publish(staging, root, { remove: [oldJan4] })
+    const result = await publish(staging, root, { remove: [oldJan4, 'fits/window_date=2025-12-31/part-0.parquet'] })
     expect(result.changes).toEqual([
       { path: fitsJan5, op: 'put', hadPrior: true },
       { path: fitsJan6, op: 'put', hadPrior: false },
@@ -63,6 +63,7 @@ describe('publish', () => {
       'run-2 runs row',
       null,
     ])
+    expect((await readdir(join(root, 'fits'))).sort()).toEqual(['window_date=2026-01-05', 'window_date=2026-01-06'])
     await commitLedger(root, 'run-2', [])
     await discardStaging(staging)
     expect(await readdir(stagingRoot(root))).toEqual([])
