@@ -140,6 +140,33 @@ export function planFiles(
   }
 }
 
+/**
+ * The ledger entries to commit after a run that read the `new` and `changed` files of `plan`:
+ * those get `runId` and their new fingerprint; `unchanged` files keep the run id that read them,
+ * with their current size and mtime (so a touched file is not fingerprinted again next time);
+ * `deleted` files are dropped. Sorted by path.
+ *
+ * @throws Error (a bug, exit 70) when a new or changed file has no fingerprint: fingerprint every
+ *   path `filesToFingerprint` lists before planning.
+ */
+export function ledgerAfter(plan: FilePlan, runId: string): LedgerEntry[] {
+  const out: LedgerEntry[] = []
+  for (const f of plan.unchanged) {
+    out.push({
+      path: f.path,
+      size: f.size,
+      mtimeMs: f.mtimeMs,
+      fingerprint: f.fingerprint ?? f.previous?.fingerprint ?? '',
+      runId: f.previous?.runId ?? runId,
+    })
+  }
+  for (const f of [...plan.new, ...plan.changed]) {
+    if (f.fingerprint === null) throw new Error(`no fingerprint for ${f.path}; fingerprint it before planning`)
+    out.push({ path: f.path, size: f.size, mtimeMs: f.mtimeMs, fingerprint: f.fingerprint, runId })
+  }
+  return out.sort((a, b) => comparePaths(a.path, b.path))
+}
+
 /** Code-unit order, the same in every locale (never `localeCompare`: runs must be reproducible). */
 export function comparePaths(a: string, b: string): number {
   return a < b ? -1 : a > b ? 1 : 0

@@ -11,7 +11,7 @@ import { afterEach, beforeEach, describe, expect, it } from 'vitest'
 import type { Moments } from '../../src/kernel/moments.js'
 import { addRow, emptyMoments, mergeMoments } from '../../src/kernel/moments.js'
 import { parseWindow, windowStartOf } from '../../src/kernel/window.js'
-import { planFiles } from '../../src/plan/files.js'
+import { ledgerAfter, planFiles } from '../../src/plan/files.js'
 import { affectedWindows } from '../../src/plan/windows.js'
 import { fingerprintFiles } from '../../src/store/fingerprint.js'
 import { commitLedger, readLedger } from '../../src/store/ledger.js'
@@ -104,13 +104,7 @@ async function miniRun(root: string, input: string, runId: string, crashAfter?: 
     const gone = [...plan.changed.flatMap((f) => (f.previous === null ? [] : [f.previous])), ...plan.deleted]
     const old = await readPartials(ledgerPartialsFiles(root, gone))
     const affected = affectedWindows(old, fresh, 1, spec as NonNullable<typeof spec>)
-    const next = [...plan.unchanged, ...plan.new, ...plan.changed].map((f) => ({
-      path: f.path,
-      size: f.size,
-      mtimeMs: f.mtimeMs,
-      fingerprint: f.fingerprint ?? '',
-      runId: f.previous !== null && f.fingerprint === f.previous.fingerprint ? f.previous.runId : runId,
-    }))
+    const next = ledgerAfter(plan, runId)
     const starts = new Set(affected.map((w) => w.windowStartMs))
     const all = (await readPartials(ledgerPartialsFiles(root, next))).filter((p) => starts.has(p.windowStartMs))
     const merged = new Map<number, Map<string, Moments>>()

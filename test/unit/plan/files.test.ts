@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest'
 import type { LedgerEntry, StatFile } from '../../../src/plan/files.js'
-import { filesToFingerprint, isStatUnchanged, planFiles } from '../../../src/plan/files.js'
+import { filesToFingerprint, isStatUnchanged, ledgerAfter, planFiles } from '../../../src/plan/files.js'
 
 const entry = (path: string, size: number, mtimeMs: number, fingerprint: string): LedgerEntry => ({
   path,
@@ -107,5 +107,32 @@ describe('planFiles', () => {
       [],
     )
     expect(plan.new.map((f) => f.path)).toEqual(['/z'])
+  })
+})
+
+describe('ledgerAfter', () => {
+  it('stamps read files with the run id, keeps unchanged ones with their new stat, drops deleted ones', () => {
+    const discovered: StatFile[] = [
+      { path: '/lake/site=north/e.parquet', size: 50, mtimeMs: 9000 },
+      { path: '/lake/site=north/c.parquet', size: 300, mtimeMs: 3500 },
+      { path: '/lake/site=north/b.parquet', size: 210, mtimeMs: 2500 },
+      { path: '/lake/site=north/a.parquet', size: 100, mtimeMs: 1000 },
+    ]
+    const fps = new Map([
+      ['/lake/site=north/e.parquet', 'fe'],
+      ['/lake/site=north/c.parquet', 'fc'],
+      ['/lake/site=north/b.parquet', 'fb2'],
+    ])
+    expect(ledgerAfter(planFiles(discovered, ledger, fps), 'run-2')).toEqual([
+      entry('/lake/site=north/a.parquet', 100, 1000, 'fa'),
+      { ...entry('/lake/site=north/b.parquet', 210, 2500, 'fb2'), runId: 'run-2' },
+      entry('/lake/site=north/c.parquet', 300, 3500, 'fc'),
+      { ...entry('/lake/site=north/e.parquet', 50, 9000, 'fe'), runId: 'run-2' },
+    ])
+  })
+
+  it('refuses a read file without a fingerprint', () => {
+    const plan = planFiles([{ path: '/new.parquet', size: 1, mtimeMs: 1 }], [])
+    expect(() => ledgerAfter(plan, 'run-2')).toThrow('no fingerprint for /new.parquet; fingerprint it before planning')
   })
 })
