@@ -12,10 +12,11 @@ import { mergePartials } from '../kernel/merge-partials.js'
 import { msPerXUnit } from '../kernel/window.js'
 import type { Logger } from '../log.js'
 import { writeTable } from '../tables/write.js'
-import type { FitRow, ShiftRow } from '../types.js'
+import { type FitRow, type ShiftRow, seriesId } from '../types.js'
 import { fitRows } from './fit-rows.js'
 import { momentsPlanOf, windowSpecOf } from './plan.js'
 import { readPartials } from './read.js'
+import { shiftRows } from './shift-rows.js'
 import { newRunId, type RunSummary, runRowOf, type WindowVerdicts } from './summary.js'
 
 export interface RunOptions {
@@ -61,7 +62,10 @@ export async function runJob(config: Config, _options: RunOptions, deps: RunDeps
   const watermarkMs =
     (config.detect.watermark === 'clock' ? startedAt : (maxTs ?? startedAt)) - config.detect.allowedLatenessMs
   const fits: FitRow[] = fitRows(states, { config, window, watermarkMs, runId, computedAtMs: startedAt })
-  const shifts: ShiftRow[] = []
+  const targets = fits
+    .filter((f) => f.window_state === 'closed')
+    .map((f) => ({ id: seriesId(f.key), key: f.key, windowStartMs: f.window_start }))
+  const shifts: ShiftRow[] = shiftRows(targets, states, { config, window, runId })
 
   await mkdir(root, { recursive: true })
   const tables = { fits: path.join(root, 'fits'), shifts: path.join(root, 'shifts'), runs: path.join(root, 'runs') }
