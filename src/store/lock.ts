@@ -18,7 +18,7 @@ export const lockedCode = 'SLOPESHIFT_LOCKED'
 export interface LockHolder {
   readonly pid: number
   readonly hostname: string
-  /** ISO 8601 UTC time the lock was taken. */
+  /** ISO 8601 UTC time the holder started asking for the lock (identifies this acquisition). */
   readonly startedAt: string
   readonly runId: string
   /**
