@@ -114,16 +114,21 @@ export async function readTable<T extends TableName>(
       )
     }
     const rowCount = data[0]?.length ?? 0
+    const converters = columns.map(fromDuckConverter)
     const rows: TableRows[T][] = []
     for (let i = 0; i < rowCount; i++) {
-      const row: Record<string, unknown> = {}
+      const row: Record<string, unknown> = spec.hasKey ? { key: null } : {}
       const key: (string | null)[] = []
-      for (const [c, column] of columns.entries()) {
-        const value = fromDuckValue(table, dir, column, data[c]?.[i])
+      for (let c = 0; c < columns.length; c++) {
+        const column = columns[c] as ColumnSpec
+        const raw = (data[c] as unknown[])[i]
+        const value = (converters[c] as (raw: unknown) => unknown)(raw)
+        if (value === invalid) throw valueError(table, dir, column, raw)
         if (column.role === 'key') key.push(value as string | null)
         else row[column.name] = value
       }
-      rows.push((spec.hasKey ? { key, ...row } : row) as unknown as TableRows[T])
+      if (spec.hasKey) row.key = key
+      rows.push(row as unknown as TableRows[T])
     }
     return rows
   })
@@ -151,34 +156,45 @@ async function checkColumns(
   )
 }
 
-function fromDuckValue(table: TableName, dir: string, column: ColumnSpec, raw: unknown): unknown {
-  const bad = (problem: string): DataError =>
-    new DataError(`${table} table in ${dir}: column "${column.name}" ${problem}; rewrite the table with this version`, {
-      context: { file: dir, column: column.name },
-    })
-  if (raw === null || raw === undefined) {
-    if (!column.nullable) throw bad('holds a null but is required')
-    return null
-  }
-  switch (column.type) {
-    case 'VARCHAR':
-      if (typeof raw !== 'string') throw bad(`holds ${typeof raw}, expected a string`)
-      if (column.values !== undefined && !column.values.includes(raw)) throw bad(`holds unknown value "${raw}"`)
-      return raw
-    case 'BIGINT': {
-      if (typeof raw !== 'bigint') throw bad(`holds ${typeof raw}, expected BIGINT`)
-      const value = Number(raw)
-      if (!Number.isSafeInteger(value)) throw bad(`holds ${raw}, beyond 2^53`)
-      return value
+/** What a converter returns for a value the row type does not allow. */
+const invalid: unique symbol = Symbol('invalid')
+
+/** Converts one value as DuckDB returns it (`epoch_us` BIGINT for timestamps) into the row field; chosen per column. */
+function fromDuckConverter(column: ColumnSpec): (raw: unknown) => unknown {
+  const convert = ((): ((raw: unknown) => unknown) => {
+    const allowed = column.values
+    switch (column.type) {
+      case 'VARCHAR':
+        return allowed === undefined
+          ? (raw) => (typeof raw === 'string' ? raw : invalid)
+          : (raw) => (typeof raw === 'string' && allowed.includes(raw) ? raw : invalid)
+      case 'BIGINT':
+        return (raw) => {
+          const value = typeof raw === 'bigint' ? Number(raw) : Number.NaN
+          return Number.isSafeInteger(value) ? value : invalid
+        }
+      case 'TIMESTAMPTZ':
+        return (raw) => (typeof raw === 'bigint' ? Number(raw) / 1000 : invalid)
+      case 'DOUBLE':
+        return (raw) => (typeof raw === 'number' ? raw : invalid)
+      case 'BOOLEAN':
+        return (raw) => (typeof raw === 'boolean' ? raw : invalid)
     }
-    case 'TIMESTAMPTZ':
-      if (typeof raw !== 'bigint') throw bad(`holds ${typeof raw}, expected a timestamp`)
-      return Number(raw) / 1000
-    case 'DOUBLE':
-      if (typeof raw !== 'number') throw bad(`holds ${typeof raw}, expected DOUBLE`)
-      return raw
-    case 'BOOLEAN':
-      if (typeof raw !== 'boolean') throw bad(`holds ${typeof raw}, expected BOOLEAN`)
-      return raw
-  }
+  })()
+  return (raw) => (raw === null || raw === undefined ? (column.nullable ? null : invalid) : convert(raw))
+}
+
+function valueError(table: TableName, dir: string, column: ColumnSpec, raw: unknown): DataError {
+  const problem =
+    raw === null || raw === undefined
+      ? 'holds a null but is required'
+      : column.type === 'BIGINT' && typeof raw === 'bigint'
+        ? `holds ${raw}, beyond 2^53`
+        : column.values !== undefined && typeof raw === 'string'
+          ? `holds unknown value "${raw}" (allowed: ${column.values.join(', ')})`
+          : `holds ${typeof raw}, expected ${column.type}`
+  return new DataError(
+    `${table} table in ${dir}: column "${column.name}" ${problem}; move the old table folder away and rerun to rebuild it`,
+    { context: { file: dir, column: column.name } },
+  )
 }

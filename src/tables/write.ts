@@ -187,6 +187,8 @@ function prepareRows(
   const partitionRows = new Map<string, number>()
   const seen = new Set<string>()
   const identity = spec.identity
+  const converters = columns.map(converterFor)
+  const partitionOfDay = new Map<number, string>()
   for (const [index, row] of rows.entries()) {
     if (typeof row !== 'object' || row === null) throw rowError(table, index, null, 'is not an object')
     const record = row as Record<string, unknown>
@@ -196,14 +198,24 @@ function prepareRows(
       throw rowError(table, index, key, `repeats the identity (${identityColumns(table, keyColumns).join(', ')})`)
     }
     seen.add(id)
-    for (const [c, column] of columns.entries()) {
+    for (let c = 0; c < columns.length; c++) {
+      const column = columns[c] as ColumnSpec
+      const converter = converters[c] as Converter
       const raw = column.role === 'key' ? (key?.[c] ?? null) : record[column.name]
-      values[c]?.push(toDuckValue(table, index, key, column, raw))
+      const value = converter.convert(raw)
+      if (value === invalid) throw valueError(table, index, key, column, converter.expected, raw)
+      ;(values[c] as DuckDBValue[]).push(value)
     }
-    const source = record[spec.partitionSource]
-    const partition = typeof source === 'number' ? partitionName(table, source) : null
-    if (partition === null) throw rowError(table, index, key, `has ${spec.partitionSource} out of range (${source})`)
-    values[columns.length]?.push(partition)
+    // The partition source is a TIMESTAMPTZ column, so the converter has already checked it is a finite epoch ms.
+    const source = record[spec.partitionSource] as number
+    const day = Math.floor(source / dayMs)
+    let partition = partitionOfDay.get(day) ?? null
+    if (partition === null) {
+      partition = partitionName(table, source)
+      if (partition === null) throw rowError(table, index, key, `has ${spec.partitionSource} out of range (${source})`)
+      partitionOfDay.set(day, partition)
+    }
+    ;(values[columns.length] as DuckDBValue[]).push(partition)
     partitionRows.set(partition, (partitionRows.get(partition) ?? 0) + 1)
   }
   return { values, partitionRows }
@@ -216,43 +228,70 @@ function checkKey(table: TableName, index: number, key: unknown, length: number)
   return key as SeriesKey
 }
 
+const dayMs = 86_400_000
+
 /** Largest |epoch ms| accepted for a TIMESTAMPTZ column: the JS Date range. */
 const maxTimestampMs = 8.64e15
 
-function toDuckValue(
+/** What a converter returns for a value its column cannot hold. */
+const invalid: unique symbol = Symbol('invalid')
+
+/** Checks one value for a column and turns it into a DuckDB value (null passes only when the column is nullable). */
+interface Converter {
+  readonly convert: (raw: unknown) => DuckDBValue | typeof invalid
+  /** What the column expects, for the error message. */
+  readonly expected: string
+}
+
+/** One converter per column, chosen once per write rather than per value (the load loop runs per cell). */
+function converterFor(column: ColumnSpec): Converter {
+  const convert = ((): ((raw: unknown) => DuckDBValue | typeof invalid) => {
+    const allowed = column.values
+    switch (column.type) {
+      case 'VARCHAR':
+        return allowed === undefined
+          ? (raw) => (typeof raw === 'string' ? raw : invalid)
+          : (raw) => (typeof raw === 'string' && allowed.includes(raw) ? raw : invalid)
+      case 'BIGINT':
+        return (raw) => (typeof raw === 'number' && Number.isSafeInteger(raw) ? BigInt(raw) : invalid)
+      case 'DOUBLE':
+        return (raw) => (typeof raw === 'number' ? raw : invalid)
+      case 'BOOLEAN':
+        return (raw) => (typeof raw === 'boolean' ? raw : invalid)
+      case 'TIMESTAMPTZ':
+        // Stored in µs (DuckDB TIMESTAMPTZ): whole ms round-trip exactly, fractions are rounded to the µs.
+        return (raw) =>
+          typeof raw === 'number' && Math.abs(raw) <= maxTimestampMs
+            ? new DuckDBTimestampTZValue(BigInt(Math.round(raw * 1000)))
+            : invalid
+    }
+  })()
+  const expected = {
+    VARCHAR: column.values === undefined ? 'a string' : `one of ${column.values.join(', ')}`,
+    BIGINT: 'a whole number',
+    DOUBLE: 'a number',
+    BOOLEAN: 'a boolean',
+    TIMESTAMPTZ: 'epoch ms within ±8.64e15',
+  }[column.type]
+  return {
+    convert: column.nullable ? (raw) => (raw === null ? null : convert(raw)) : convert,
+    expected,
+  }
+}
+
+/** The error for a value `raw` of `column` that its converter refused. */
+function valueError(
   table: TableName,
   index: number,
   key: SeriesKey | null,
   column: ColumnSpec,
+  expected: string,
   raw: unknown,
-): DuckDBValue {
+): SlopeshiftError {
   if (raw === null || raw === undefined) {
-    if (column.nullable && raw === null) return null
-    throw rowError(table, index, key, `column "${column.name}" is ${String(raw)} but must hold a value`)
+    return rowError(table, index, key, `column "${column.name}" is ${String(raw)} but must hold a value`)
   }
-  const bad = (expected: string): SlopeshiftError =>
-    rowError(table, index, key, `column "${column.name}" must be ${expected}, got ${JSON.stringify(raw) ?? raw}`)
-  switch (column.type) {
-    case 'VARCHAR':
-      if (typeof raw !== 'string') throw bad('a string')
-      if (column.values !== undefined && !column.values.includes(raw)) throw bad(`one of ${column.values.join(', ')}`)
-      return raw
-    case 'BIGINT':
-      if (typeof raw !== 'number' || !Number.isSafeInteger(raw)) throw bad('a whole number')
-      return BigInt(raw)
-    case 'DOUBLE':
-      if (typeof raw !== 'number') throw bad('a number')
-      return raw
-    case 'BOOLEAN':
-      if (typeof raw !== 'boolean') throw bad('a boolean')
-      return raw
-    case 'TIMESTAMPTZ':
-      if (typeof raw !== 'number' || !Number.isFinite(raw) || Math.abs(raw) > maxTimestampMs) {
-        throw bad('epoch ms within ±8.64e15')
-      }
-      // Stored in µs (DuckDB TIMESTAMPTZ): whole ms round-trip exactly, fractions are rounded to the µs.
-      return new DuckDBTimestampTZValue(BigInt(Math.round(raw * 1000)))
-  }
+  return rowError(table, index, key, `column "${column.name}" must be ${expected}, got ${JSON.stringify(raw) ?? raw}`)
 }
 
 function rowError(table: TableName, index: number, key: SeriesKey | null, problem: string): SlopeshiftError {

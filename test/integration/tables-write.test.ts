@@ -360,4 +360,22 @@ describe('readTable', () => {
       /^fits table in .*fits: .*window_date=2026-03-01\/part-0\.parquet lacks column unit \(has site, compressor, window_start,.*\); check the configured key columns \(source\.keys\)/,
     )
   })
+
+  it('throws a DataError when a file holds a value the row type does not allow', async () => {
+    const dir = freshDir('runs')
+    await writeTable('runs', [runRow('r1', day0)], { keyColumns: [], dir, compression: 'zstd', connection })
+    const file = join(dir, 'run_date=2026-03-01', 'part-0.parquet')
+    // Another writer put an unknown status into the file.
+    await connection.run(
+      `COPY (SELECT * REPLACE ('paused' AS status) FROM read_parquet('${file}')) TO '${file}.other' (FORMAT parquet)`,
+    )
+    await rm(file)
+    await connection.run(`COPY (SELECT * FROM read_parquet('${file}.other')) TO '${file}' (FORMAT parquet)`)
+    await rm(`${file}.other`)
+    const error = await readTable('runs', dir, [], { connection }).catch((err: unknown) => err)
+    expect(error).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
+    expect((error as Error).message).toMatch(
+      /column "status" holds unknown value "paused" \(allowed: ok, failed, stopped\)/,
+    )
+  })
 })
