@@ -24,6 +24,16 @@ export interface Ledger {
   readonly committedRunId: string | null
   /** One entry per consumed input file, sorted by path. */
   readonly files: readonly LedgerEntry[]
+  /** Latest accepted timestamp (epoch ms) seen in any committed run; null before the first. */
+  readonly maxTsMs: number | null
+  /** The watermark the last committed run tested up to (epoch ms); windows ending after it were open. */
+  readonly watermarkMs: number | null
+}
+
+/** Run-level facts committed with the file entries. */
+export interface LedgerMeta {
+  readonly maxTsMs: number | null
+  readonly watermarkMs: number | null
 }
 
 const entrySchema = z
@@ -41,6 +51,8 @@ const ledgerSchema = z
     version: z.literal(ledgerVersion),
     committedRunId: z.string().min(1).nullable(),
     files: z.array(entrySchema),
+    maxTsMs: z.number().nullable().default(null),
+    watermarkMs: z.number().nullable().default(null),
   })
   .strict()
 
@@ -51,7 +63,7 @@ export function ledgerPath(root: string): string {
 
 /** The ledger of a root that has never committed a run. */
 export function emptyLedger(): Ledger {
-  return { version: ledgerVersion, committedRunId: null, files: [] }
+  return { version: ledgerVersion, committedRunId: null, files: [], maxTsMs: null, watermarkMs: null }
 }
 
 /**
@@ -107,13 +119,20 @@ export async function readLedger(root: string): Promise<Ledger> {
  *
  * @throws CantCreateError when the state folder or the tmp file cannot be written.
  */
-export async function commitLedger(root: string, runId: string, files: readonly LedgerEntry[]): Promise<Ledger> {
+export async function commitLedger(
+  root: string,
+  runId: string,
+  files: readonly LedgerEntry[],
+  meta: LedgerMeta = { maxTsMs: null, watermarkMs: null },
+): Promise<Ledger> {
   const ledger: Ledger = {
     version: ledgerVersion,
     committedRunId: runId,
     files: [...files]
       .map((e) => ({ path: e.path, size: e.size, mtimeMs: e.mtimeMs, fingerprint: e.fingerprint, runId: e.runId }))
       .sort((a, b) => comparePaths(a.path, b.path)),
+    maxTsMs: meta.maxTsMs,
+    watermarkMs: meta.watermarkMs,
   }
   const file = ledgerPath(root)
   const tmp = `${file}.tmp-${process.pid}`

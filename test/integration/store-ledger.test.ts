@@ -23,7 +23,13 @@ const entry = (path: string, fp: string, runId = 'run-a') => ({
 
 describe('readLedger', () => {
   it('returns an empty ledger when none was committed', async () => {
-    expect(await readLedger(root)).toEqual({ version: 1, committedRunId: null, files: [] })
+    expect(await readLedger(root)).toEqual({
+      version: 1,
+      committedRunId: null,
+      files: [],
+      maxTsMs: null,
+      watermarkMs: null,
+    })
   })
 
   it('fails with a data error naming the file and the fix when the ledger is damaged', async () => {
@@ -63,9 +69,18 @@ describe('commitLedger', () => {
 
   it('replaces the previous ledger as a whole', async () => {
     await commitLedger(root, 'run-1', [entry('/lake/a.parquet', 'a'), entry('/lake/b.parquet', 'b')])
-    await commitLedger(root, 'run-2', [entry('/lake/c.parquet', 'c', 'run-2')])
+    await commitLedger(root, 'run-2', [entry('/lake/c.parquet', 'c', 'run-2')], {
+      maxTsMs: 1_800_000,
+      watermarkMs: 1_700_000,
+    })
     const ledger = await readLedger(root)
-    expect(ledger).toEqual({ version: 1, committedRunId: 'run-2', files: [entry('/lake/c.parquet', 'c', 'run-2')] })
+    expect(ledger).toEqual({
+      version: 1,
+      committedRunId: 'run-2',
+      files: [entry('/lake/c.parquet', 'c', 'run-2')],
+      maxTsMs: 1_800_000,
+      watermarkMs: 1_700_000,
+    })
   })
 
   it('fails with a cant-create error when the state folder cannot be made', async () => {
