@@ -143,7 +143,7 @@ export function accumulateRows(slots: MomentSlots, rows: RowColumns): number {
 
 /** Unweighted Welford step, statistics.md §1.3 (same operations as `addRow` with w = 1). */
 function accumulatePlain(s: MomentSlots, len: number, slot: Int32Array, x: Float64Array, y: Float64Array): number {
-  const { n, wSum, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped } = s
+  const { n, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped } = s
   let bad = 0
   for (let i = 0; i < len; i++) {
     const k = slot[i] as number
@@ -158,17 +158,19 @@ function accumulatePlain(s: MomentSlots, len: number, slot: Int32Array, x: Float
     }
     const c = (n[k] as number) + 1
     n[k] = c
-    wSum[k] = c
     const f = 1 / c
-    const dx = xi - (xMean[k] as number)
-    const dy = yi - (yMean[k] as number)
-    const mx = (xMean[k] as number) + dx * f
-    const my = (yMean[k] as number) + dy * f
+    const ox = xMean[k] as number
+    const oy = yMean[k] as number
+    const dx = xi - ox
+    const dy = yi - oy
+    const mx = ox + dx * f
+    const my = oy + dy * f
     xMean[k] = mx
     yMean[k] = my
+    const ey = yi - my
     sxx[k] = (sxx[k] as number) + dx * (xi - mx)
-    syy[k] = (syy[k] as number) + dy * (yi - my)
-    sxy[k] = (sxy[k] as number) + dx * (yi - my)
+    syy[k] = (syy[k] as number) + dy * ey
+    sxy[k] = (sxy[k] as number) + dx * ey
     if (xi < (xMin[k] as number)) xMin[k] = xi
     if (xi > (xMax[k] as number)) xMax[k] = xi
   }
@@ -218,7 +220,7 @@ function accumulateWeighted(
 
 /** Unweighted Welford step plus the lag-block pair step of statistics.md §5.2 (as `addLagRow`). */
 function accumulateLagged(s: MomentSlots, len: number, slot: Int32Array, x: Float64Array, y: Float64Array): number {
-  const { n, wSum, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped } = s
+  const { n, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped } = s
   const { pairs, curXMean, curYMean, prevXMean, prevYMean, cYy1, cYx1, cXy1, cXx1 } = s
   const { firstX, firstY, lastX, lastY, inOrder } = s
   let bad = 0
@@ -234,7 +236,6 @@ function accumulateLagged(s: MomentSlots, len: number, slot: Int32Array, x: Floa
     }
     const c = (n[k] as number) + 1
     n[k] = c
-    wSum[k] = c
     const f = 1 / c
     const dx = xi - (xMean[k] as number)
     const dy = yi - (yMean[k] as number)
@@ -289,7 +290,8 @@ export function slotMoments(slots: MomentSlots, k: number): Moments {
   const at = (a: Float64Array): number => a[k] as number
   const m: Moments = {
     n: at(slots.n),
-    wSum: at(slots.wSum),
+    // unweighted loops do not store Σw: it equals n
+    wSum: slots.weighted ? at(slots.wSum) : at(slots.n),
     xMean: at(slots.xMean),
     yMean: at(slots.yMean),
     sxx: at(slots.sxx),
