@@ -1,22 +1,26 @@
 /**
  * The decision rule of statistics.md §4.3 for one window family (all series tested for the same
  * window in one run): thin → flat → test → Benjamini–Hochberg across the family → practical change.
- * Pure and deterministic: the output is in input order and does not depend on it otherwise.
+ * Pure and deterministic: results are in input order and do not otherwise depend on it.
+ *
+ * Results are kept column-wise (typed arrays) and turned into a `ShiftDecision` object only on
+ * request (`at(i)`), so a family of 10⁶ series costs a few typed arrays rather than 10⁶ retained
+ * objects; the reason text is also built on request.
  */
 import type { DetectConfig } from '../config/schema.js'
 import type { Moments } from '../kernel/moments.js'
 import { qValues } from '../stats/fdr.js'
 import { residualDf, type WeightKind } from '../stats/fit.js'
-import { fallbackRho, serialStats } from '../stats/serial.js'
+import { effectiveN, fallbackRho, lagRhoStar } from '../stats/serial.js'
 import {
   type Baseline,
-  baselineSample,
   chowTest,
-  commonSlopeBaseline,
   directedP,
   fallbackNEff,
+  fillCommonSlope,
   mergedLineBaseline,
   mergeOnOrigin,
+  newBaselineScratch,
   pooledTest,
   residualSum,
   type ShiftTestResult,
@@ -30,7 +34,7 @@ export interface ShiftCandidate {
   readonly current: Moments
   /**
    * Moments of the baseline windows, oldest first, each on its own origin. All given windows are
-   * used; thin (n < minPoints) and flat ones are left out (statistics.md §3.5).
+   * used, except thin (n < minPoints) and flat ones, which are left out (statistics.md §3.5).
    */
   readonly baseline: readonly Moments[]
   /**
@@ -62,11 +66,13 @@ export interface ShiftDecision {
   readonly baselineWindows: number
   /** slope − baselineSlope. */
   readonly delta: number | null
+  /** SE of delta (null for Chow and untested series). */
   readonly deltaSe: number | null
   /** slope / baselineSlope; null when the baseline slope is 0. */
   readonly ratio: number | null
-  /** t (Welch, pooled) or F (Chow). */
+  /** t (Welch, pooled) or F (Chow); null when untested or both fits exact (§3.6). */
   readonly statistic: number | null
+  /** ν (Welch), pooled df, or Chow's denominator df. */
   readonly df: number | null
   /** p before BH (one-sided when `direction` is up/down). */
   readonly p: number | null
@@ -76,6 +82,40 @@ export interface ShiftDecision {
   readonly serial: SerialUse
   readonly nEffNew: number | null
   readonly nEffBase: number | null
+}
+
+const VERDICTS: readonly Verdict[] = ['shift', 'steady', 'thin', 'flat']
+const TESTS: readonly DecisionTest[] = ['welch_ar1', 'welch', 'pooled', 'chow']
+const SERIALS: readonly SerialUse[] = ['adjusted', 'fallback', 'unavailable', 'off']
+
+/** Which rule decided (drives the reason text). */
+enum Rule {
+  ThinNew,
+  NoBaseline,
+  ThinBaseline,
+  FlatNew,
+  FlatBaseline,
+  ThinNEffNew,
+  ThinNEffBase,
+  NoBaseDf,
+  SteadyQ,
+  SteadyRel,
+  SteadyAbs,
+  Shift,
+}
+
+/** Verdict codes, indexes into `VERDICTS`. */
+const V_SHIFT = 0
+const V_STEADY = 1
+const V_THIN = 2
+const V_FLAT = 3
+
+/** Per-side serial state (statistics.md §5.4, §5.6). */
+enum Side {
+  Adjusted,
+  Fallback,
+  Unavailable,
+  Exact,
 }
 
 /** Formats a number for a reason: 3 significant digits, no trailing zeros. */
@@ -88,298 +128,13 @@ function pct(x: number): string {
   return Number.isFinite(x) ? `${fmt(100 * x)}%` : '∞'
 }
 
-/** Serial state of one side of the test (statistics.md §5.4, §5.6). */
-type SideSerial = 'adjusted' | 'fallback' | 'unavailable' | 'exact'
-
-/** A series that reached the test (step 3 of §4.3). */
-interface Tested {
-  readonly index: number
-  readonly result: ShiftTestResult
-  readonly p: number
-  readonly baseSlope: number
-  readonly curSlope: number
-  readonly k: number
-  readonly test: DecisionTest
-  readonly serial: SerialUse
-  readonly nEffNew: number | null
-  readonly nEffBase: number | null
+function nullable(x: number): number | null {
+  return Number.isNaN(x) ? null : x
 }
 
-function combineSerial(a: SideSerial, b: SideSerial): SerialUse {
-  if (a === 'fallback' || b === 'fallback') return 'fallback'
-  if (a === 'unavailable' || b === 'unavailable') return 'unavailable'
-  if (a === 'adjusted' || b === 'adjusted') return 'adjusted'
-  return 'unavailable'
-}
-
-function flatOrEmpty(
-  verdict: Verdict,
-  reason: string,
-  slope: number | null,
-  baselineSlope: number | null,
-  k: number,
-  test: DecisionTest,
-  serial: SerialUse,
-  nEffNew: number | null = null,
-  nEffBase: number | null = null,
-): ShiftDecision {
-  return {
-    verdict,
-    reason,
-    slope,
-    baselineSlope,
-    baselineWindows: k,
-    delta: slope !== null && baselineSlope !== null ? slope - baselineSlope : null,
-    deltaSe: null,
-    ratio: slope !== null && baselineSlope !== null && baselineSlope !== 0 ? slope / baselineSlope : null,
-    statistic: null,
-    df: null,
-    p: null,
-    q: null,
-    test,
-    serial,
-    nEffNew,
-    nEffBase,
-  }
-}
-
-function slopeOf(m: Moments): number | null {
-  if (m.n < 2 || m.xMax === m.xMin || !(m.sxx > 0)) return null
+function slopeOf(m: Moments): number {
+  if (m.n < 2 || m.xMax === m.xMin || !(m.sxx > 0)) return Number.NaN
   return m.syy === 0 ? 0 : m.sxy / m.sxx
-}
-
-function requireOffsets(c: ShiftCandidate, what: string): readonly number[] {
-  const o = c.baselineOffsets
-  if (o === undefined || o.length !== c.baseline.length) {
-    throw new Error(`${what} needs baselineOffsets for every baseline window (got ${o?.length ?? 'none'})`)
-  }
-  return o
-}
-
-/**
- * Decides every series of one window family (statistics.md §4.3, §3.4–§3.6, §4.2, §5.4–§5.6):
- *
- * 1. `thin` when the new window has `n < minPoints`, or no baseline window has `n ≥ minPoints`;
- * 2. `flat` when all x are equal in the new window or in every remaining baseline window;
- * 3. the configured test (default Welch with lag-1 serial adjustment per side, §3.4); with the
- *    adjustment, `thin` when `n_eff < minNEff` (new) or `n_eff < k·minNEff` (common-slope baseline);
- *    `direction: up|down` turns p one-sided;
- * 4. BH (or BY) q-values over all series that reached step 3;
- * 5. `shift` iff `q ≤ fdrQ` and the change is practical (`minRelChange`, `minAbsChange`), else `steady`.
- *
- * Sides without a usable lag block (rows out of order) use the §5.6 fallback: the median ρ* of the
- * family's new windows that have one, else `serialFallbackRho`. The output is in input order.
- * Baselines of k > 1 windows follow `baselineKind` (§3.5); `chow` compares with the merged line of
- * the baseline windows, so it needs `baselineOffsets`.
- */
-export function decideWindowFamily(
-  candidates: readonly ShiftCandidate[],
-  detect: DetectConfig,
-  opts: DecideOptions = {},
-): ShiftDecision[] {
-  const weights = opts.weights ?? 'none'
-  const serialMode = detect.serial === 'off' || weights !== 'none' || detect.test !== 'welch' ? 'off' : detect.serial
-  const plainTest: DecisionTest = detect.test
-  const out: (ShiftDecision | null)[] = new Array(candidates.length).fill(null)
-
-  // Pass 1: thin/flat, fits, serial statistics of the new windows (their ρ* feed the §5.6 median).
-  interface Pending {
-    readonly index: number
-    readonly cur: Moments
-    readonly curSlope: number
-    readonly curRss: number
-    readonly curNEff: number | null
-    readonly base: Baseline
-    readonly baseWindows: readonly Moments[]
-    readonly baseOffsets: readonly number[] | null
-  }
-  const pending: Pending[] = []
-  const rhos: number[] = []
-  for (let i = 0; i < candidates.length; i++) {
-    const c = candidates[i] as ShiftCandidate
-    const cur = c.current
-    const curSlope = slopeOf(cur)
-    if (cur.n < detect.minPoints) {
-      out[i] = flatOrEmpty(
-        'thin',
-        `thin: new window has ${cur.n} points < minPoints ${detect.minPoints}`,
-        curSlope,
-        null,
-        0,
-        plainTest,
-        'off',
-      )
-      continue
-    }
-    const eligible: Moments[] = []
-    const eligibleOffsets: number[] = []
-    let anyEnough = false
-    for (let j = 0; j < c.baseline.length; j++) {
-      const b = c.baseline[j] as Moments
-      if (b.n < detect.minPoints) continue
-      anyEnough = true
-      if (b.xMax === b.xMin || !(b.sxx > 0)) continue
-      eligible.push(b)
-      eligibleOffsets.push(c.baselineOffsets?.[j] ?? Number.NaN)
-    }
-    if (!anyEnough) {
-      const reason =
-        c.baseline.length === 0
-          ? 'thin: no baseline window'
-          : `thin: no baseline window has ≥ minPoints ${detect.minPoints} points`
-      out[i] = flatOrEmpty('thin', reason, curSlope, null, 0, plainTest, 'off')
-      continue
-    }
-    if (curSlope === null) {
-      out[i] = flatOrEmpty('flat', 'flat: all x equal in the new window', null, null, 0, plainTest, 'off')
-      continue
-    }
-    if (eligible.length === 0) {
-      out[i] = flatOrEmpty('flat', 'flat: all x equal in every baseline window', curSlope, null, 0, plainTest, 'off')
-      continue
-    }
-    let offsets: readonly number[] | null = null
-    if (detect.baselineKind === 'merged-line' || detect.test === 'chow') {
-      requireOffsets(c, detect.test === 'chow' ? 'test chow' : 'baselineKind merged-line')
-      offsets = eligibleOffsets
-    }
-    const base =
-      detect.baselineKind === 'merged-line' && eligible.length > 1
-        ? mergedLineBaseline(eligible, relativeTo(offsets as readonly number[]), weights, serialMode)
-        : commonSlopeBaseline(eligible, weights, serialMode)
-    const curRss = residualSum(cur)
-    let curNEff: number | null = null
-    if (serialMode !== 'off' && curRss > 0) {
-      const s = serialStats(cur, curSlope, curRss, serialMode)
-      if (s !== null) {
-        curNEff = s.nEff
-        rhos.push(s.rhoStar)
-      }
-    }
-    pending.push({
-      index: i,
-      cur,
-      curSlope,
-      curRss,
-      curNEff,
-      base: base as Baseline,
-      baseWindows: eligible,
-      baseOffsets: offsets,
-    })
-  }
-
-  // Pass 2: §5.6 fallback, n_eff thin rule, the test.
-  const fb = serialMode === 'off' ? { rho: 0, source: 'config' as const } : fallbackRho(rhos, detect.serialFallbackRho)
-  const tested: Tested[] = []
-  for (const t of pending) {
-    const { cur, base } = t
-    const k = t.baseWindows.length
-    if (detect.test === 'chow') {
-      const offs = t.baseOffsets as readonly number[]
-      const origin = Math.min(...offs)
-      const old = mergeOnOrigin(t.baseWindows, relativeTo(offs))
-      const r = chowTest(old, cur, -origin, weights)
-      const oldSlope = base.slope
-      const delta = t.curSlope - oldSlope
-      tested.push(testedOf(t.index, r, delta, detect, oldSlope, t.curSlope, k, 'chow', 'off', null, null))
-      continue
-    }
-    if (detect.test === 'pooled') {
-      const r = pooledTest(
-        { slope: base.slope, rss: base.rss, sxx: base.sxx, df: base.df },
-        { slope: t.curSlope, rss: t.curRss, sxx: cur.sxx, df: residualDf(cur, weights) },
-      )
-      tested.push(testedOf(t.index, r, r.delta, detect, base.slope, t.curSlope, k, 'pooled', 'off', null, null))
-      continue
-    }
-    // Welch, serial-adjusted per side when possible (§3.4).
-    let curSide: SideSerial = 'exact'
-    let baseSide: SideSerial = 'exact'
-    let nEffNew: number | null = null
-    let nEffBase: number | null = null
-    if (serialMode !== 'off') {
-      if (t.curRss > 0) {
-        if (t.curNEff !== null) {
-          curSide = 'adjusted'
-          nEffNew = t.curNEff
-        } else if (fb.rho > 0) {
-          curSide = 'fallback'
-          nEffNew = fallbackNEff(cur.n, fb.rho)
-        } else curSide = 'unavailable'
-      }
-      if (base.rss > 0) {
-        if (base.serial !== null) {
-          baseSide = 'adjusted'
-          nEffBase = base.serial.nEff
-        } else if (fb.rho > 0) {
-          baseSide = 'fallback'
-          nEffBase = fallbackNEff(base.n, fb.rho)
-        } else baseSide = 'unavailable'
-      }
-    }
-    const serial: SerialUse = serialMode === 'off' ? 'off' : combineSerial(curSide, baseSide)
-    const test: DecisionTest = nEffNew !== null || nEffBase !== null ? 'welch_ar1' : 'welch'
-    if (nEffNew !== null && nEffNew < detect.minNEff) {
-      out[t.index] = flatOrEmpty(
-        'thin',
-        `thin: new window n_eff ${fmt(nEffNew)} < minNEff ${detect.minNEff}`,
-        t.curSlope,
-        base.slope,
-        k,
-        test,
-        serial,
-        nEffNew,
-        nEffBase,
-      )
-      continue
-    }
-    const mult = base.kind === 'common-slope' ? k : 1
-    if (nEffBase !== null && nEffBase < mult * detect.minNEff) {
-      const need = mult === 1 ? `minNEff ${detect.minNEff}` : `${mult} windows × minNEff ${detect.minNEff}`
-      out[t.index] = flatOrEmpty(
-        'thin',
-        `thin: baseline n_eff ${fmt(nEffBase)} < ${need}`,
-        t.curSlope,
-        base.slope,
-        k,
-        test,
-        serial,
-        nEffNew,
-        nEffBase,
-      )
-      continue
-    }
-    const curDf = nEffNew === null ? residualDf(cur, weights) : nEffNew - 2
-    const curSample = { slope: t.curSlope, variance: t.curRss / (curDf * cur.sxx), df: curDf }
-    const baseSample = baselineSample(base, nEffBase)
-    if (baseSample === null) {
-      out[t.index] = flatOrEmpty(
-        'thin',
-        'thin: baseline has no residual degrees of freedom',
-        t.curSlope,
-        base.slope,
-        k,
-        test,
-        serial,
-        nEffNew,
-        nEffBase,
-      )
-      continue
-    }
-    const r = welchTest(baseSample, curSample)
-    tested.push(testedOf(t.index, r, r.delta, detect, base.slope, t.curSlope, k, test, serial, nEffNew, nEffBase))
-  }
-
-  // Pass 3: FDR across the family (§4.2), then the practical-change rule (§4.3).
-  const ps = new Float64Array(tested.length)
-  for (let i = 0; i < tested.length; i++) ps[i] = (tested[i] as Tested).p
-  const qs = qValues(ps, detect.fdrMethod)
-  for (let i = 0; i < tested.length; i++) {
-    const t = tested[i] as Tested
-    const q = qs[i] as number
-    out[t.index] = decide(t, q, detect)
-  }
-  return out as ShiftDecision[]
 }
 
 /** Offsets of the baseline windows onto the earliest window's origin. */
@@ -388,74 +143,379 @@ function relativeTo(offsets: readonly number[]): number[] {
   return offsets.map((o) => o - origin)
 }
 
-function testedOf(
-  index: number,
-  result: ShiftTestResult,
-  delta: number,
-  detect: DetectConfig,
-  baseSlope: number,
-  curSlope: number,
-  k: number,
-  test: DecisionTest,
-  serial: SerialUse,
-  nEffNew: number | null,
-  nEffBase: number | null,
-): Tested {
-  return {
-    index,
-    result,
-    p: directedP(result.p, delta, detect.direction),
-    baseSlope,
-    curSlope,
-    k,
-    test,
-    serial,
-    nEffNew,
-    nEffBase,
+/**
+ * The decisions of one window family, column-wise. `at(i)` materialises series i (input order);
+ * the typed arrays are exposed for bulk consumers (NaN stands for null).
+ */
+export class FamilyDecisions implements Iterable<ShiftDecision> {
+  readonly length: number
+  /** Index into ['shift', 'steady', 'thin', 'flat']. */
+  readonly verdictCode: Uint8Array
+  readonly p: Float64Array
+  readonly q: Float64Array
+  /** @internal */ readonly rule: Uint8Array
+  /** @internal */ readonly testCode: Uint8Array
+  /** @internal */ readonly serialCode: Uint8Array
+  /** @internal */ readonly baseK: Int32Array
+  /** @internal */ readonly curN: Int32Array
+  /** @internal */ readonly slope: Float64Array
+  /** @internal */ readonly baseSlope: Float64Array
+  /** @internal */ readonly deltaSe: Float64Array
+  /** @internal */ readonly statistic: Float64Array
+  /** @internal */ readonly df: Float64Array
+  /** @internal */ readonly nEffNew: Float64Array
+  /** @internal */ readonly nEffBase: Float64Array
+  readonly #detect: DetectConfig
+
+  constructor(length: number, detect: DetectConfig) {
+    this.length = length
+    this.#detect = detect
+    this.verdictCode = new Uint8Array(length)
+    this.rule = new Uint8Array(length)
+    this.testCode = new Uint8Array(length)
+    this.serialCode = new Uint8Array(length)
+    this.baseK = new Int32Array(length)
+    this.curN = new Int32Array(length)
+    const nan = () => new Float64Array(length).fill(Number.NaN)
+    this.p = nan()
+    this.q = nan()
+    this.slope = nan()
+    this.baseSlope = nan()
+    this.deltaSe = nan()
+    this.statistic = nan()
+    this.df = nan()
+    this.nEffNew = nan()
+    this.nEffBase = nan()
+  }
+
+  /** Verdict of series i. */
+  verdict(i: number): Verdict {
+    return VERDICTS[this.verdictCode[i] as number] as Verdict
+  }
+
+  /** The full decision of series i (input order). */
+  at(i: number): ShiftDecision {
+    const slope = nullable(this.slope[i] as number)
+    const baselineSlope = nullable(this.baseSlope[i] as number)
+    const delta = slope !== null && baselineSlope !== null ? slope - baselineSlope : null
+    return {
+      verdict: this.verdict(i),
+      reason: this.reason(i),
+      slope,
+      baselineSlope,
+      baselineWindows: this.baseK[i] as number,
+      delta,
+      deltaSe: nullable(this.deltaSe[i] as number),
+      ratio: slope !== null && baselineSlope !== null && baselineSlope !== 0 ? slope / baselineSlope : null,
+      statistic: nullable(this.statistic[i] as number),
+      df: nullable(this.df[i] as number),
+      p: nullable(this.p[i] as number),
+      q: nullable(this.q[i] as number),
+      test: TESTS[this.testCode[i] as number] as DecisionTest,
+      serial: SERIALS[this.serialCode[i] as number] as SerialUse,
+      nEffNew: nullable(this.nEffNew[i] as number),
+      nEffBase: nullable(this.nEffBase[i] as number),
+    }
+  }
+
+  /** All decisions as objects, in input order. */
+  toArray(): ShiftDecision[] {
+    const out = new Array<ShiftDecision>(this.length)
+    for (let i = 0; i < this.length; i++) out[i] = this.at(i)
+    return out
+  }
+
+  *[Symbol.iterator](): Iterator<ShiftDecision> {
+    for (let i = 0; i < this.length; i++) yield this.at(i)
+  }
+
+  /** The rule that decided series i, in plain words. */
+  reason(i: number): string {
+    const d = this.#detect
+    const slope = this.slope[i] as number
+    const base = this.baseSlope[i] as number
+    const absDelta = Math.abs(slope - base)
+    const rel = base === 0 ? (absDelta === 0 ? 0 : Number.POSITIVE_INFINITY) : absDelta / Math.abs(base)
+    const q = this.q[i] as number
+    const k = this.baseK[i] as number
+    switch (this.rule[i] as Rule) {
+      case Rule.ThinNew:
+        return `thin: new window has ${this.curN[i]} points < minPoints ${d.minPoints}`
+      case Rule.NoBaseline:
+        return 'thin: no baseline window'
+      case Rule.ThinBaseline:
+        return `thin: no baseline window has ≥ minPoints ${d.minPoints} points`
+      case Rule.FlatNew:
+        return 'flat: all x equal in the new window'
+      case Rule.FlatBaseline:
+        return 'flat: all x equal in every baseline window'
+      case Rule.ThinNEffNew:
+        return `thin: new window n_eff ${fmt(this.nEffNew[i] as number)} < minNEff ${d.minNEff}`
+      case Rule.ThinNEffBase: {
+        const mult = d.baselineKind === 'merged-line' ? 1 : k
+        const need = mult === 1 ? `minNEff ${d.minNEff}` : `${mult} windows × minNEff ${d.minNEff}`
+        return `thin: baseline n_eff ${fmt(this.nEffBase[i] as number)} < ${need}`
+      }
+      case Rule.NoBaseDf:
+        return 'thin: baseline has no residual degrees of freedom'
+      case Rule.SteadyQ:
+        return `steady: q ${fmt(q)} > fdrQ ${d.fdrQ}`
+      case Rule.SteadyRel:
+        return `steady: q ${fmt(q)} ≤ fdrQ ${d.fdrQ} but |Δ| ${pct(rel)} < minRelChange ${pct(d.minRelChange)}`
+      case Rule.SteadyAbs:
+        return `steady: q ${fmt(q)} ≤ fdrQ ${d.fdrQ} but |Δ| ${fmt(absDelta)} < minAbsChange ${d.minAbsChange}`
+      case Rule.Shift: {
+        const parts = [`q ${fmt(q)} ≤ fdrQ ${d.fdrQ}`]
+        if (d.minRelChange !== 0) parts.push(`|Δ| ${pct(rel)} ≥ minRelChange ${pct(d.minRelChange)}`)
+        if (d.minAbsChange !== 0) parts.push(`|Δ| ${fmt(absDelta)} ≥ minAbsChange ${d.minAbsChange}`)
+        return `shift: ${parts.join(' and ')}`
+      }
+    }
   }
 }
 
-function decide(t: Tested, q: number, detect: DetectConfig): ShiftDecision {
-  const delta = t.curSlope - t.baseSlope
-  const absDelta = Math.abs(delta)
-  const rel = t.baseSlope === 0 ? (delta === 0 ? 0 : Number.POSITIVE_INFINITY) : absDelta / Math.abs(t.baseSlope)
-  const absOk = detect.minAbsChange === 0 || absDelta >= detect.minAbsChange
-  const relOk = detect.minRelChange === 0 || rel >= detect.minRelChange
-  let verdict: Verdict
-  let reason: string
-  if (!(q <= detect.fdrQ)) {
-    verdict = 'steady'
-    reason = `steady: q ${fmt(q)} > fdrQ ${detect.fdrQ}`
-  } else if (!relOk) {
-    verdict = 'steady'
-    reason = `steady: q ${fmt(q)} ≤ fdrQ ${detect.fdrQ} but |Δ| ${pct(rel)} < minRelChange ${pct(detect.minRelChange)}`
-  } else if (!absOk) {
-    verdict = 'steady'
-    reason = `steady: q ${fmt(q)} ≤ fdrQ ${detect.fdrQ} but |Δ| ${fmt(absDelta)} < minAbsChange ${detect.minAbsChange}`
-  } else {
-    verdict = 'shift'
-    const parts = [`q ${fmt(q)} ≤ fdrQ ${detect.fdrQ}`]
-    if (detect.minRelChange !== 0) parts.push(`|Δ| ${pct(rel)} ≥ minRelChange ${pct(detect.minRelChange)}`)
-    if (detect.minAbsChange !== 0) parts.push(`|Δ| ${fmt(absDelta)} ≥ minAbsChange ${detect.minAbsChange}`)
-    reason = `shift: ${parts.join(' and ')}`
+/**
+ * Decides every series of one window family (statistics.md §4.3, with §3.4–§3.6, §4.2, §5.4–§5.6):
+ *
+ * 1. `thin` when the new window has `n < minPoints`, or no baseline window has `n ≥ minPoints`;
+ * 2. `flat` when all x are equal in the new window or in every remaining baseline window;
+ * 3. the configured test (default Welch with the lag-1 serial adjustment per side, §3.4); with the
+ *    adjustment, `thin` when `n_eff < minNEff` (new window) or `n_eff < k·minNEff` (common-slope
+ *    baseline of k windows); `direction: up|down` makes p one-sided;
+ * 4. BH (or BY, `fdrMethod`) q-values over all series that reached step 3;
+ * 5. `shift` iff `q ≤ fdrQ` and the change is practical (`minRelChange`, `minAbsChange`), else `steady`.
+ *
+ * Sides without a usable lag block (rows out of order) use the §5.6 fallback: the median ρ* of this
+ * family's new windows that have one, else `serialFallbackRho` (`serial` = `fallback`, or
+ * `unavailable` when that is 0). Exact fits skip the adjustment (§5.4). Weighted fits, `pooled` and
+ * `chow` run without it (`serial` = `off`). k > 1 baselines follow `baselineKind` (§3.5); `chow`
+ * compares with the merged line of the baseline windows and needs `baselineOffsets`.
+ *
+ * Cost is linear apart from one sort for BH: about 10⁶ series per second or two.
+ */
+export function decideWindowFamily(
+  candidates: readonly ShiftCandidate[],
+  detect: DetectConfig,
+  opts: DecideOptions = {},
+): FamilyDecisions {
+  const weights = opts.weights ?? 'none'
+  const serialMode = detect.serial === 'off' || weights !== 'none' || detect.test !== 'welch' ? 'off' : detect.serial
+  const m = candidates.length
+  const out = new FamilyDecisions(m, detect)
+  const plainTestCode = detect.test === 'welch' ? 1 : detect.test === 'pooled' ? 2 : 3
+  out.testCode.fill(plainTestCode)
+  out.serialCode.fill(3)
+
+  // Per-series numbers carried from pass 1 to pass 2 (Welch only).
+  const curRss = new Float64Array(m)
+  const curSxx = new Float64Array(m)
+  const curDf = new Float64Array(m)
+  const baseRss = new Float64Array(m)
+  const baseSxx = new Float64Array(m)
+  const baseDf = new Float64Array(m)
+  const baseParams = new Float64Array(m)
+  const baseN = new Float64Array(m)
+  /** 0 decided, 1 tested, 2 Welch pending. */
+  const state = new Uint8Array(m)
+  const rhos: number[] = []
+  const base = newBaselineScratch()
+
+  // Pass 1: thin/flat, baselines, pooled/Chow tests, the new windows' serial statistics.
+  for (let i = 0; i < m; i++) {
+    const c = candidates[i] as ShiftCandidate
+    const cur = c.current
+    const slope = slopeOf(cur)
+    out.slope[i] = slope
+    out.curN[i] = cur.n
+    if (cur.n < detect.minPoints) {
+      decideUntested(out, i, Rule.ThinNew, V_THIN)
+      continue
+    }
+    let enough = 0
+    let usable = 0
+    for (const b of c.baseline) {
+      if (b.n < detect.minPoints) continue
+      enough++
+      if (b.xMax !== b.xMin && b.sxx > 0) usable++
+    }
+    if (enough === 0) {
+      decideUntested(out, i, c.baseline.length === 0 ? Rule.NoBaseline : Rule.ThinBaseline, V_THIN)
+      continue
+    }
+    if (Number.isNaN(slope)) {
+      decideUntested(out, i, Rule.FlatNew, V_FLAT)
+      continue
+    }
+    if (usable === 0) {
+      decideUntested(out, i, Rule.FlatBaseline, V_FLAT)
+      continue
+    }
+    let windows = c.baseline
+    let offsets = c.baselineOffsets ?? null
+    if (usable !== c.baseline.length) {
+      const keep = c.baseline.map((b) => b.n >= detect.minPoints && b.xMax !== b.xMin && b.sxx > 0)
+      windows = c.baseline.filter((_, j) => keep[j])
+      offsets = offsets === null ? null : offsets.filter((_, j) => keep[j])
+    }
+    const needsOffsets = detect.test === 'chow' || (detect.baselineKind === 'merged-line' && usable > 1)
+    if (needsOffsets && (offsets === null || offsets.length !== windows.length)) {
+      throw new Error(
+        `series ${i}: ${detect.test === 'chow' ? 'test chow' : 'baselineKind merged-line'} needs baselineOffsets for every baseline window`,
+      )
+    }
+    if (detect.baselineKind === 'merged-line' && usable > 1) {
+      const b = mergedLineBaseline(windows, relativeTo(offsets as readonly number[]), weights, serialMode) as Baseline
+      base.k = b.k
+      base.n = b.n
+      base.slope = b.slope
+      base.rss = b.rss
+      base.sxx = b.sxx
+      base.params = b.params
+      base.df = b.df
+      base.nEff = b.serial === null ? Number.NaN : b.serial.nEff
+    } else fillCommonSlope(windows, weights, serialMode, base)
+    out.baseSlope[i] = base.slope
+    out.baseK[i] = usable
+    const rss = residualSum(cur)
+    if (detect.test === 'chow') {
+      const rel = relativeTo([...(offsets as readonly number[]), 0])
+      const old = mergeOnOrigin(windows, rel.slice(0, -1))
+      recordTest(out, i, chowTest(old, cur, rel[rel.length - 1] as number, weights), detect)
+      state[i] = 1
+      continue
+    }
+    if (detect.test === 'pooled') {
+      const r = pooledTest(
+        { slope: base.slope, rss: base.rss, sxx: base.sxx, df: base.df },
+        { slope, rss, sxx: cur.sxx, df: residualDf(cur, weights) },
+      )
+      recordTest(out, i, r, detect)
+      state[i] = 1
+      continue
+    }
+    curRss[i] = rss
+    curSxx[i] = cur.sxx
+    curDf[i] = residualDf(cur, weights)
+    baseRss[i] = base.rss
+    baseSxx[i] = base.sxx
+    baseDf[i] = base.df
+    baseParams[i] = base.params
+    baseN[i] = base.n
+    if (serialMode !== 'off') {
+      const rho = lagRhoStar(cur, slope, rss, serialMode)
+      if (!Number.isNaN(rho)) {
+        out.nEffNew[i] = effectiveN(cur.n, rho)
+        rhos.push(rho)
+      }
+      out.nEffBase[i] = base.nEff
+    }
+    state[i] = 2
   }
-  const r = t.result
-  return {
-    verdict,
-    reason,
-    slope: t.curSlope,
-    baselineSlope: t.baseSlope,
-    baselineWindows: t.k,
-    delta,
-    deltaSe: r.se,
-    ratio: t.baseSlope === 0 ? null : t.curSlope / t.baseSlope,
-    statistic: r.statistic,
-    df: r.df,
-    p: t.p,
-    q,
-    test: t.test,
-    serial: t.serial,
-    nEffNew: t.nEffNew,
-    nEffBase: t.nEffBase,
+
+  // Pass 2: §5.6 fallback, the n_eff thin rule and the Welch test (§3.2).
+  const fb = serialMode === 'off' ? 0 : fallbackRho(rhos, detect.serialFallbackRho).rho
+  for (let i = 0; i < m; i++) {
+    if (state[i] !== 2) continue
+    let curSide = Side.Exact
+    let baseSide = Side.Exact
+    let nNew = out.nEffNew[i] as number
+    let nBase = out.nEffBase[i] as number
+    if (serialMode !== 'off') {
+      if ((curRss[i] as number) > 0) {
+        if (!Number.isNaN(nNew)) curSide = Side.Adjusted
+        else if (fb > 0) {
+          curSide = Side.Fallback
+          nNew = fallbackNEff(out.curN[i] as number, fb)
+        } else curSide = Side.Unavailable
+      }
+      if ((baseRss[i] as number) > 0) {
+        if (!Number.isNaN(nBase)) baseSide = Side.Adjusted
+        else if (fb > 0) {
+          baseSide = Side.Fallback
+          nBase = fallbackNEff(baseN[i] as number, fb)
+        } else baseSide = Side.Unavailable
+      }
+      out.nEffNew[i] = nNew
+      out.nEffBase[i] = nBase
+      out.serialCode[i] = serialCodeOf(curSide, baseSide)
+    }
+    out.testCode[i] = Number.isNaN(nNew) && Number.isNaN(nBase) ? 1 : 0
+    const k = out.baseK[i] as number
+    if (!Number.isNaN(nNew) && nNew < detect.minNEff) {
+      decideUntested(out, i, Rule.ThinNEffNew, V_THIN)
+      state[i] = 0
+      continue
+    }
+    const mult = detect.baselineKind === 'merged-line' ? 1 : k
+    if (!Number.isNaN(nBase) && nBase < mult * detect.minNEff) {
+      decideUntested(out, i, Rule.ThinNEffBase, V_THIN)
+      state[i] = 0
+      continue
+    }
+    const dfNew = Number.isNaN(nNew) ? (curDf[i] as number) : nNew - 2
+    const dfOld = Number.isNaN(nBase) ? (baseDf[i] as number) : nBase - (baseParams[i] as number)
+    if (!(dfOld > 0) || !(dfNew > 0)) {
+      decideUntested(out, i, Rule.NoBaseDf, V_THIN)
+      state[i] = 0
+      continue
+    }
+    const r = welchTest(
+      {
+        slope: out.baseSlope[i] as number,
+        variance: (baseRss[i] as number) / (dfOld * (baseSxx[i] as number)),
+        df: dfOld,
+      },
+      { slope: out.slope[i] as number, variance: (curRss[i] as number) / (dfNew * (curSxx[i] as number)), df: dfNew },
+    )
+    recordTest(out, i, r, detect)
+    state[i] = 1
   }
+
+  // Pass 3: FDR across the family (§4.2), then the practical-change rule (§4.3).
+  let tested = 0
+  for (let i = 0; i < m; i++) if (state[i] === 1) tested++
+  const idx = new Int32Array(tested)
+  const ps = new Float64Array(tested)
+  for (let i = 0, j = 0; i < m; i++) {
+    if (state[i] !== 1) continue
+    idx[j] = i
+    ps[j++] = out.p[i] as number
+  }
+  const qs = qValues(ps, detect.fdrMethod)
+  for (let j = 0; j < tested; j++) {
+    const i = idx[j] as number
+    const q = qs[j] as number
+    out.q[i] = q
+    const base = out.baseSlope[i] as number
+    const absDelta = Math.abs((out.slope[i] as number) - base)
+    const rel = base === 0 ? (absDelta === 0 ? 0 : Number.POSITIVE_INFINITY) : absDelta / Math.abs(base)
+    let rule: Rule
+    if (!(q <= detect.fdrQ)) rule = Rule.SteadyQ
+    else if (detect.minRelChange !== 0 && rel < detect.minRelChange) rule = Rule.SteadyRel
+    else if (detect.minAbsChange !== 0 && absDelta < detect.minAbsChange) rule = Rule.SteadyAbs
+    else rule = Rule.Shift
+    out.rule[i] = rule
+    out.verdictCode[i] = rule === Rule.Shift ? V_SHIFT : V_STEADY
+  }
+  return out
+}
+
+/** Combined `serial` code of the two sides: fallback > unavailable > adjusted (§4.3, §5.6). */
+function serialCodeOf(a: Side, b: Side): number {
+  if (a === Side.Fallback || b === Side.Fallback) return 1
+  if (a === Side.Unavailable || b === Side.Unavailable) return 2
+  if (a === Side.Adjusted || b === Side.Adjusted) return 0
+  return 2
+}
+
+function decideUntested(out: FamilyDecisions, i: number, rule: Rule, verdict: number): void {
+  out.rule[i] = rule
+  out.verdictCode[i] = verdict
+}
+
+function recordTest(out: FamilyDecisions, i: number, r: ShiftTestResult, detect: DetectConfig): void {
+  out.deltaSe[i] = r.se ?? Number.NaN
+  out.statistic[i] = r.statistic ?? Number.NaN
+  out.df[i] = r.df ?? Number.NaN
+  out.p[i] = directedP(r.p, r.delta, detect.direction)
 }

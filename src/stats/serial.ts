@@ -83,6 +83,15 @@ export function serialStats(m: Moments, slope: number, rss: number, mode: Serial
 }
 
 /**
+ * ρ* of one window (statistics.md §5.3, §5.4) without building a `SerialStats` object, for the
+ * per-series hot path of a family decision. NaN when the lag block is unusable or `rss = 0`.
+ */
+export function lagRhoStar(m: Moments, slope: number, rss: number, mode: SerialMode): number {
+  if (!hasUsableLag(m) || !(rss > 0)) return Number.NaN
+  return rhoStar(lagResidualSum(m.lag, m.xMean, m.yMean, slope) / rss, m.n, mode)
+}
+
+/**
  * Serial-adjusted slope variance `v_adj = rss/(df_adj·sxx)` with `df_adj = n_eff − params`
  * (statistics.md §5.4: params = 2 for one window, so v_adj = slope_se²·(n − 2)/(n_eff − 2); §3.5:
  * params = k + 1 for a common-slope baseline of k windows). Null when df_adj ≤ 0.
@@ -100,7 +109,7 @@ export function adjustedSlopeVariance(
 /**
  * The ρ* to use for series whose rows were not in order (statistics.md §5.6): the median ρ* of the
  * same metric's series that do have a usable lag block, else `configured` (`serialFallbackRho`,
- * default 0 = no adjustment). `source` feeds the `serial` column (`fallback` / `unavailable`).
+ * default 0 = no adjustment). ρ* values are in [0, 0.99]. `source` feeds the `serial` column (`fallback` / `unavailable`).
  */
 export function fallbackRho(
   sameMetricRhoStars: ArrayLike<number>,
@@ -108,8 +117,46 @@ export function fallbackRho(
 ): { readonly rho: number; readonly source: 'median' | 'config' } {
   const n = sameMetricRhoStars.length
   if (n === 0) return { rho: configured, source: 'config' }
-  const s = Float64Array.from(sameMetricRhoStars).sort()
+  const v = Float64Array.from(sameMetricRhoStars)
   const mid = n >> 1
-  const rho = n % 2 === 1 ? (s[mid] as number) : ((s[mid - 1] as number) + (s[mid] as number)) / 2
+  const upper = selectKth(v, mid)
+  // After selecting the k-th value, everything left of it is ≤ it: the lower middle is their maximum.
+  let lower = Number.NEGATIVE_INFINITY
+  if (n % 2 === 0) for (let i = 0; i < mid; i++) lower = Math.max(lower, v[i] as number)
+  const rho = n % 2 === 1 ? upper : (lower + upper) / 2
   return { rho, source: 'median' }
+}
+
+/**
+ * The k-th smallest value (0-based) by Hoare quickselect with a median-of-three pivot, in place:
+ * afterwards `a[k]` holds it, values before k are ≤ it and values after are ≥ it. O(n) expected.
+ */
+export function selectKth(a: Float64Array, k: number): number {
+  let lo = 0
+  let hi = a.length - 1
+  while (hi > lo) {
+    const mid = (lo + hi) >> 1
+    const x = a[lo] as number
+    const y = a[mid] as number
+    const z = a[hi] as number
+    // median of three
+    const pivot = Math.max(Math.min(x, y), Math.min(Math.max(x, y), z))
+    let i = lo
+    let j = hi
+    while (i <= j) {
+      while ((a[i] as number) < pivot) i++
+      while ((a[j] as number) > pivot) j--
+      if (i <= j) {
+        const t = a[i] as number
+        a[i] = a[j] as number
+        a[j] = t
+        i++
+        j--
+      }
+    }
+    if (k <= j) hi = j
+    else if (k >= i) lo = i
+    else break
+  }
+  return a[k] as number
 }

@@ -162,58 +162,129 @@ export interface BaselineSerial {
 }
 
 /**
+ * Mutable, allocation-free form of a baseline for bulk use: one instance is refilled per series.
+ * NaN marks unavailable serial fields.
+ */
+export interface BaselineScratch {
+  k: number
+  n: number
+  slope: number
+  rss: number
+  sxx: number
+  params: number
+  df: number
+  se1: number
+  r1: number
+  rhoStar: number
+  nEff: number
+}
+
+/** A fresh `BaselineScratch` (all NaN). */
+export function newBaselineScratch(): BaselineScratch {
+  const nan = Number.NaN
+  return {
+    k: 0,
+    n: 0,
+    slope: nan,
+    rss: nan,
+    sxx: nan,
+    params: nan,
+    df: nan,
+    se1: nan,
+    r1: nan,
+    rhoStar: nan,
+    nEff: nan,
+  }
+}
+
+/**
  * Common-slope baseline ("pooled within-window slope", one intercept per window; statistics.md §3.5):
  * `slope = ΣSxy/ΣSxx`, `rss = ΣSyy − slope·ΣSxy`, `df = N − k − 1`, `v = rss/(df·ΣSxx)`. A level jump
- * between windows does not leak into the slope. With `serial` given, r1 is evaluated at the common
- * slope from each window's lag block, with n̄ = N/k in the bias term. Windows must each have
- * `sxx > 0` (drop thin and flat windows first); an empty list gives null. k = 1 equals the window fit.
+ * between windows does not leak into the slope. With `serial` on (unweighted only), r1 is evaluated
+ * at the common slope from each window's lag block, with n̄ = N/k in the bias term, and
+ * `n_eff = N(1 − ρ*)/(1 + ρ*)`. Windows must each have `sxx > 0` (drop thin and flat windows first)
+ * and k ≥ 1. k = 1 equals the window's own fit. Fills `into` and allocates nothing.
+ */
+export function fillCommonSlope(
+  windows: readonly Moments[],
+  weights: WeightKind,
+  serial: SerialMode | 'off',
+  into: BaselineScratch,
+): void {
+  const k = windows.length
+  let sxx = 0
+  let sxy = 0
+  let syy = 0
+  let n = 0
+  let w = 0
+  let lagOk = serial !== 'off' && weights === 'none'
+  for (let j = 0; j < k; j++) {
+    const m = windows[j] as Moments
+    sxx += m.sxx
+    sxy += m.sxy
+    syy += m.syy
+    n += m.n
+    w += m.wSum
+    if (lagOk && !hasUsableLag(m)) lagOk = false
+  }
+  const slope = syy === 0 ? 0 : sxy / sxx
+  let rss = Math.max(syy - slope * sxy, 0)
+  if (rss <= EXACT_FIT_RATIO * syy) rss = 0
+  into.k = k
+  into.n = n
+  into.slope = slope
+  into.rss = rss
+  into.sxx = sxx
+  into.params = k + 1
+  into.df = (weights === 'frequency' ? w : n) - (k + 1)
+  into.se1 = Number.NaN
+  into.r1 = Number.NaN
+  into.rhoStar = Number.NaN
+  into.nEff = Number.NaN
+  if (lagOk && rss > 0 && serial !== 'off') {
+    let se1 = 0
+    for (let j = 0; j < k; j++) {
+      const m = windows[j] as Moments
+      if (m.lag !== null) se1 += lagResidualSum(m.lag, m.xMean, m.yMean, slope)
+    }
+    const r1 = se1 / rss
+    const rho = rhoStar(r1, n / k, serial)
+    into.se1 = se1
+    into.r1 = r1
+    into.rhoStar = rho
+    into.nEff = effectiveN(n, rho)
+  }
+}
+
+/** Freezes a filled scratch into a `Baseline`. */
+export function baselineOf(kind: BaselineKind, s: BaselineScratch): Baseline {
+  return {
+    kind,
+    k: s.k,
+    n: s.n,
+    slope: s.slope,
+    rss: s.rss,
+    sxx: s.sxx,
+    params: s.params,
+    df: s.df,
+    variance: s.df > 0 ? s.rss / (s.df * s.sxx) : null,
+    serial: Number.isNaN(s.nEff) ? null : { se1: s.se1, r1: s.r1, rhoStar: s.rhoStar, nEff: s.nEff },
+  }
+}
+
+/**
+ * The common-slope baseline of statistics.md §3.5 as an object (see `fillCommonSlope`); null for an
+ * empty list.
  */
 export function commonSlopeBaseline(
   windows: readonly Moments[],
   weights: WeightKind,
   serial: SerialMode | 'off',
 ): Baseline | null {
-  const k = windows.length
-  if (k === 0) return null
-  let sxx = 0
-  let sxy = 0
-  let syy = 0
-  let n = 0
-  let w = 0
-  for (const m of windows) {
-    sxx += m.sxx
-    sxy += m.sxy
-    syy += m.syy
-    n += m.n
-    w += m.wSum
-  }
-  const slope = syy === 0 ? 0 : sxy / sxx
-  let rss = Math.max(syy - slope * sxy, 0)
-  if (rss <= EXACT_FIT_RATIO * syy) rss = 0
-  const params = k + 1
-  const df = (weights === 'frequency' ? w : n) - params
-  let ser: BaselineSerial | null = null
-  if (serial !== 'off' && weights === 'none' && rss > 0 && windows.every(hasUsableLag)) {
-    let se1 = 0
-    for (const m of windows) {
-      if (m.lag !== null) se1 += lagResidualSum(m.lag, m.xMean, m.yMean, slope)
-    }
-    const r1 = se1 / rss
-    const rho = rhoStar(r1, n / k, serial)
-    ser = { se1, r1, rhoStar: rho, nEff: effectiveN(n, rho) }
-  }
-  return {
-    kind: 'common-slope',
-    k,
-    n,
-    slope,
-    rss,
-    sxx,
-    params,
-    df,
-    variance: df > 0 ? rss / (df * sxx) : null,
-    serial: ser,
-  }
+  if (windows.length === 0) return null
+  const s = newBaselineScratch()
+  fillCommonSlope(windows, weights, serial, s)
+  return baselineOf('common-slope', s)
 }
 
 /**
