@@ -1,27 +1,59 @@
 /**
- * One run of the job (design.md "Data flow"): discover → plan → read → merge → fit → test →
- * write tables → publish → commit → deliver. I/O lives here and in the stages it calls; the math
- * it calls is pure.
+ * One run of the job (design.md "Data flow"): lock → recover → discover → plan against the ledger
+ * → read new and changed files → store their partials → re-merge the affected windows from partials
+ * → fit → test → write tables to staging → publish → commit the ledger (the commit point) → stage
+ * and deliver digests. I/O lives here and in the stages it calls; the math it calls is pure.
+ *
+ * Crash safety: partials files are named by content and written before the commit, so an
+ * uncommitted run leaves only garbage that the next run collects; table files are staged and
+ * published by renames that `recoverStaging` rolls back unless the ledger committed. A rerun after
+ * any crash redoes the same work from the same committed state and converges to the same tables.
  */
-import { mkdir } from 'node:fs/promises'
 import path from 'node:path'
 import type { Config } from '../config/schema.js'
 import { discoverFiles } from '../dataset/discover.js'
 import { NoInputError } from '../errors.js'
-import { mergePartials } from '../kernel/merge-partials.js'
-import { msPerXUnit } from '../kernel/window.js'
+import { type MergedState, mergePartials } from '../kernel/merge-partials.js'
+import { msPerXUnit, previousWindowStart, type WindowSpec, windowEndOf, windowStartOf } from '../kernel/window.js'
 import type { Logger } from '../log.js'
-import { writeTable } from '../tables/write.js'
-import { type FitRow, type ShiftRow, seriesId } from '../types.js'
+import { flushOutbox, undeliveredError } from '../notify/flush.js'
+import { stageDigests } from '../notify/stage.js'
+import { type FilePlan, ledgerAfter, planFiles } from '../plan/files.js'
+import { affectedWindows, windowStartsBetween } from '../plan/windows.js'
+import { fingerprintFiles } from '../store/fingerprint.js'
+import { commitLedger, emptyLedger, type Ledger, readLedger } from '../store/ledger.js'
+import { acquireRunLock } from '../store/lock.js'
+import {
+  gcPartials,
+  ledgerPartialsFiles,
+  partialsFilePath,
+  readPartials as readStoredPartials,
+  writePartials,
+} from '../store/partials.js'
+import { ensureDir } from '../store/paths.js'
+import { createStaging, discardStaging, publish, recoverStaging } from '../store/staging.js'
+import { partitionFileName } from '../tables/columns.js'
+import { listTableFiles } from '../tables/read.js'
+import { replaceWindows, writeTable } from '../tables/write.js'
+import { type PartialMoments, type SourceFile, seriesId } from '../types.js'
 import { fitRows } from './fit-rows.js'
 import { momentsPlanOf, windowSpecOf } from './plan.js'
 import { readPartials } from './read.js'
 import { shiftRows } from './shift-rows.js'
-import { newRunId, type RunSummary, runRowOf, type WindowVerdicts } from './summary.js'
+import { newRunId, type RunSummary, runRowOf, verdictCounts } from './summary.js'
 
 export interface RunOptions {
-  /** Ignore the ledger and rebuild every table from every file. */
+  /** Ignore the ledger: rebuild every table from every file. */
   readonly full?: boolean
+  /** Also recompute the windows overlapping [fromMs, toMs) (epoch ms). */
+  readonly fromMs?: number
+  readonly toMs?: number
+  /** Fingerprint every file, even when size and mtime match the ledger. */
+  readonly verify?: boolean
+  /** How long to wait for another run's lock before exiting 75 (default 0: fail at once). */
+  readonly lockWaitMs?: number
+  /** Skip webhook delivery (notices stay in the outbox). */
+  readonly noDeliver?: boolean
 }
 
 export interface RunDeps {
@@ -30,54 +62,163 @@ export interface RunDeps {
   readonly signal?: AbortSignal
   /** Called with the running total of rows read (progress display). */
   readonly onRows?: (rows: number) => void
+  /** Test hook: the fetch used for webhooks (default global fetch). */
+  readonly fetch?: typeof fetch
 }
 
 /** Runs the job once; returns its summary. Throws SlopeshiftError subclasses for expected failures. */
-export async function runJob(config: Config, _options: RunOptions, deps: RunDeps): Promise<RunSummary> {
+export async function runJob(config: Config, options: RunOptions, deps: RunDeps): Promise<RunSummary> {
   const startedAt = deps.now()
   const runId = newRunId(startedAt)
   const log = deps.log.child({ runId, job: config.job })
   const root = config.output.root
+  await ensureDir(root)
+  const release = await acquireRunLock(root, { runId, waitMs: options.lockWaitMs ?? 0 })
+  try {
+    return await runLocked(config, options, { ...deps, log }, runId, startedAt)
+  } finally {
+    await release()
+  }
+}
+
+async function runLocked(
+  config: Config,
+  options: RunOptions,
+  deps: RunDeps,
+  runId: string,
+  startedAt: number,
+): Promise<RunSummary> {
+  const { log, signal } = deps
+  const root = config.output.root
   const window = windowSpecOf(config)
   const plan = momentsPlanOf(config)
-  log.info({ paths: config.source.paths.length, window: window.label, xUnit: config.window.xUnit }, 'run started')
+  const k = config.detect.baselineWindows
+  const committed = await readLedger(root)
+  const recovery = await recoverStaging(root, committed.committedRunId)
+  if (recovery.rolledBack.length > 0) log.warn({ runs: recovery.rolledBack }, 'uncommitted publish rolled back')
+  await gcPartials(root, committed)
+  const ledger: Ledger = options.full === true ? emptyLedger() : committed
+  log.info({ window: window.label, xUnit: config.window.xUnit, full: options.full === true }, 'run started')
 
+  // Discover and plan.
   const discovery = await discoverFiles(config.source.paths, { format: config.source.format, exclude: [root] })
   for (const f of discovery.ignored) log.debug({ file: f.path, reason: f.reason }, 'file ignored')
-  if (discovery.files.length === 0) {
+  if (discovery.files.length === 0 && ledger.files.length === 0) {
     throw new NoInputError(
       `no Parquet or Arrow files found under ${config.source.paths.join(', ')}; check source.paths in the config`,
     )
   }
-  const read = await readPartials(discovery.files, plan, {
+  const fingerprints = await fingerprintFiles(discovery.files, ledger.files, { verify: options.verify === true })
+  const filePlan = planFilesFor(discovery.files, ledger, fingerprints, committed, options.full === true)
+  const byPath = new Map(discovery.files.map((f) => [f.path, f]))
+  const toRead = [...filePlan.new, ...filePlan.changed].map((f) => byPath.get(f.path) as SourceFile)
+  log.info(
+    {
+      new: filePlan.new.length,
+      changed: filePlan.changed.length,
+      deleted: filePlan.deleted.length,
+      unchanged: filePlan.unchanged.length,
+    },
+    'files planned',
+  )
+
+  // Read new and changed files; store their partials under content-addressed names.
+  const read = await readPartials(toRead, plan, {
     threads: config.engine.threads,
     memoryLimit: config.engine.memoryLimit,
     log,
-    ...(deps.signal ? { signal: deps.signal } : {}),
+    ...(signal ? { signal } : {}),
     ...(deps.onRows ? { onRows: deps.onRows } : {}),
   })
-  deps.signal?.throwIfAborted()
-  const states = mergePartials(read.partials)
-  const maxTs = maxTimestampMs(states, config)
+  signal?.throwIfAborted()
+  const byFile = groupByFile(read.partials)
+  for (const f of [...filePlan.new, ...filePlan.changed]) {
+    await writePartials(partialsFilePath(root, f.path, f.fingerprint ?? ''), byFile.get(f.path) ?? [], {
+      threads: config.engine.threads,
+    })
+  }
+  signal?.throwIfAborted()
+
+  // Which windows change: partials replaced, baselines moved, windows closed by the new watermark, --from/--to.
+  const replacedEntries = [...filePlan.changed.map((f) => f.previous), ...filePlan.deleted].filter((e) => e !== null)
+  const oldPartials = await readStoredPartials(ledgerPartialsFiles(root, replacedEntries))
+  const affected = affectedWindows(oldPartials, read.partials, k, window)
+  const maxTsMs = maxOf(committed.maxTsMs, maxTimestampMs(read.partials, config))
   const watermarkMs =
-    (config.detect.watermark === 'clock' ? startedAt : (maxTs ?? startedAt)) - config.detect.allowedLatenessMs
-  const fits: FitRow[] = fitRows(states, { config, window, watermarkMs, runId, computedAtMs: startedAt })
+    (config.detect.watermark === 'clock' ? startedAt : (maxTsMs ?? startedAt)) - config.detect.allowedLatenessMs
+  const starts = new Set<number>(affected.map((a) => a.windowStartMs))
+  if (options.full === true) for (const p of oldPartials) starts.add(p.windowStartMs)
+  for (const s of closedSince(window, ledger.watermarkMs, watermarkMs, maxTsMs)) starts.add(s)
+  if (options.fromMs !== undefined && options.toMs !== undefined) {
+    for (const s of windowStartsBetween(window, options.fromMs, options.toMs)) starts.add(s)
+  }
+  const readStarts = new Set(starts)
+  for (const s of starts) {
+    let b = s
+    for (let j = 0; j < k; j++) {
+      b = previousWindowStart(window, b)
+      readStarts.add(b)
+    }
+  }
+
+  // Re-merge those windows from all current partials (never subtract: statistics.md §1.6).
+  const unchangedFiles = ledgerPartialsFiles(
+    root,
+    filePlan.unchanged.map((f) => ({ path: f.path, fingerprint: f.fingerprint ?? '' })),
+  )
+  const stored =
+    readStarts.size === 0 ? [] : await readStoredPartials(unchangedFiles, { windowStarts: [...readStarts] })
+  const fresh = read.partials.filter((p) => readStarts.has(p.windowStartMs))
+  const states: MergedState[] = mergePartials([...stored, ...fresh])
+  const current = states.filter((s) => starts.has(s.windowStartMs))
+  const fits = fitRows(current, { config, window, watermarkMs, runId, computedAtMs: startedAt })
   const targets = fits
     .filter((f) => f.window_state === 'closed')
     .map((f) => ({ id: seriesId(f.key), key: f.key, windowStartMs: f.window_start }))
-  const shifts: ShiftRow[] = shiftRows(targets, states, { config, window, runId })
+  const shifts = shiftRows(targets, states, { config, window, runId })
+  signal?.throwIfAborted()
 
-  await mkdir(root, { recursive: true })
+  // Stage the tables, publish, commit.
   const tables = { fits: path.join(root, 'fits'), shifts: path.join(root, 'shifts'), runs: path.join(root, 'runs') }
-  const keyColumns = config.source.keys
-  const compression = config.output.compression
-  await writeTable('fits', fits, { keyColumns, dir: tables.fits, compression })
-  await writeTable('shifts', shifts, { keyColumns, dir: tables.shifts, compression })
+  const staging = await createStaging(root, runId)
+  const write = { keyColumns: config.source.keys, compression: config.output.compression }
+  const replace = [...starts]
+  const remove: string[] = []
+  for (const table of ['fits', 'shifts'] as const) {
+    const rows = table === 'fits' ? fits : shifts
+    const r = await replaceWindows(table, rows as never, {
+      ...write,
+      dir: tables[table],
+      stagingDir: path.join(staging, table),
+      replaceWindowStarts: replace,
+    })
+    for (const p of r.removed) remove.push(`${table}/${p}/${partitionFileName}`)
+  }
+  if (options.full === true) {
+    for (const table of ['fits', 'shifts'] as const) {
+      for (const f of await listTableFiles(table, tables[table])) {
+        remove.push(path.relative(root, f).split(path.sep).join('/'))
+      }
+    }
+  }
 
   const rowsRead = read.stats.reduce((a, s) => a + s.rows, 0)
   const rowsSkipped = read.stats.reduce((a, s) => a + s.skipped, 0)
-  const endedAt = deps.now()
-  const summary: RunSummary = {
+  const stage = await stageDigests({
+    job: config.job,
+    runId,
+    keyColumns: config.source.keys,
+    xUnit: config.window.xUnit,
+    timeZone: config.window.timeZone,
+    rows: shifts,
+    root,
+    webhooks: config.notify.webhooks,
+    cooldownWindows: config.notify.cooldownWindows,
+    window,
+    nowMs: startedAt,
+  })
+  const queued = stage.staged.filter((s) => s.enqueue?.kind === 'queued').length
+  const summaryOf = (endedAt: number, sent: number, pending: number): RunSummary => ({
     run_id: runId,
     job: config.job,
     status: 'ok',
@@ -86,64 +227,110 @@ export async function runJob(config: Config, _options: RunOptions, deps: RunDeps
     ended_at: new Date(endedAt).toISOString(),
     duration_ms: endedAt - startedAt,
     files: {
-      new: discovery.files.length,
-      changed: 0,
-      deleted: 0,
-      skipped: 0,
-      read: discovery.files.length,
+      new: filePlan.new.length,
+      changed: filePlan.changed.length,
+      deleted: filePlan.deleted.length,
+      skipped: filePlan.unchanged.length,
+      read: toRead.length,
       ignored: discovery.ignored.length,
     },
     rows: { read: rowsRead, skipped: rowsSkipped },
-    series: new Set(states.map((s) => s.id)).size,
+    series: new Set(current.map((s) => s.id)).size,
     windows: {
       total: fits.length,
       open: fits.filter((f) => f.window_state === 'open').length,
-      remerged: states.length,
+      remerged: current.length,
     },
     verdicts: verdictCounts(shifts),
     shifts: shifts.filter((s) => s.verdict === 'shift').length,
-    notices: { sent: 0, pending: 0 },
+    notices: { sent, pending },
     output: { root, ...tables },
+  })
+  await writeTable('runs', [runRowOf(summaryOf(deps.now(), 0, queued))], {
+    ...write,
+    dir: tables.runs,
+    stagingDir: path.join(staging, 'runs'),
+  })
+  signal?.throwIfAborted()
+  await publish(staging, root, { remove })
+  await commitLedger(root, runId, ledgerAfter(filePlan, runId), { maxTsMs, watermarkMs })
+  await discardStaging(staging)
+  await gcPartials(root, { files: ledgerAfter(filePlan, runId) })
+  log.info({ files: toRead.length, rows: rowsRead, fits: fits.length, shifts: shifts.length }, 'run committed')
+
+  // Deliver what waits in the outbox (this run's digest and any left by earlier runs).
+  let sent = 0
+  let pending = queued
+  if (options.noDeliver !== true && config.notify.webhooks.length > 0) {
+    const flushed = await flushOutbox(
+      root,
+      { webhooks: config.notify.webhooks, maxAgeHours: config.notify.maxAgeHours },
+      { log, ...(deps.fetch ? { fetch: deps.fetch } : {}), ...(signal ? { signal } : {}) },
+    )
+    sent = flushed.sent
+    pending = flushed.pending
+    const summary = summaryOf(deps.now(), sent, pending)
+    const undelivered = undeliveredError(flushed)
+    if (undelivered !== null) {
+      log.error({ pending, runSummary: summary.files }, 'digests left undelivered; results are committed')
+      throw undelivered
+    }
+    return summary
   }
-  await writeTable('runs', [runRowOf(summary)], { keyColumns, dir: tables.runs, compression })
-  log.info(
-    { files: summary.files.read, rows: rowsRead, skipped: rowsSkipped, series: summary.series, fits: fits.length },
-    'run finished',
-  )
-  return summary
+  return summaryOf(deps.now(), sent, pending)
 }
 
-/** Latest accepted timestamp (epoch ms) over all states, or null when there are none. */
-function maxTimestampMs(
-  states: readonly { windowStartMs: number; moments: { n: number; xMax: number } }[],
-  config: Config,
-): number | null {
-  const unit = msPerUnit(config)
+/** The file plan; `--full` treats every committed file as deleted and every discovered one as new. */
+function planFilesFor(
+  files: readonly SourceFile[],
+  ledger: Ledger,
+  fingerprints: ReadonlyMap<string, string>,
+  committed: Ledger,
+  full: boolean,
+): FilePlan {
+  const p = planFiles(files, ledger.files, fingerprints)
+  return full ? { ...p, deleted: committed.files } : p
+}
+
+function groupByFile(partials: readonly PartialMoments[]): Map<string, PartialMoments[]> {
+  const m = new Map<string, PartialMoments[]>()
+  for (const p of partials) {
+    const list = m.get(p.file)
+    if (list === undefined) m.set(p.file, [p])
+    else list.push(p)
+  }
+  return m
+}
+
+function maxOf(a: number | null, b: number | null): number | null {
+  return a === null ? b : b === null ? a : Math.max(a, b)
+}
+
+/** Latest accepted timestamp (epoch ms) over partials, or null when there are none. */
+function maxTimestampMs(partials: readonly PartialMoments[], config: Config): number | null {
+  const unit = msPerXUnit[config.window.xUnit]
   let max: number | null = null
-  for (const s of states) {
-    if (s.moments.n === 0) continue
-    const t = s.windowStartMs + s.moments.xMax * unit
+  for (const p of partials) {
+    if (p.moments.n === 0) continue
+    const t = p.windowStartMs + p.moments.xMax * unit
     if (max === null || t > max) max = t
   }
   return max
 }
 
-function msPerUnit(config: Config): number {
-  return msPerXUnit[config.window.xUnit]
-}
-
-/** Verdict counts per window, sorted by window start. */
-export function verdictCounts(shifts: readonly ShiftRow[]): WindowVerdicts[] {
-  const by = new Map<number, { shift: number; steady: number; thin: number; flat: number }>()
-  for (const s of shifts) {
-    let c = by.get(s.window_start)
-    if (c === undefined) {
-      c = { shift: 0, steady: 0, thin: 0, flat: 0 }
-      by.set(s.window_start, c)
-    }
-    c[s.verdict] += 1
+/**
+ * Starts of the windows that closed since the last committed watermark: their end lies in
+ * (previous, current]. Bounded by the data's latest timestamp so a clock watermark far ahead does not
+ * enumerate empty windows.
+ */
+function closedSince(spec: WindowSpec, previousMs: number | null, currentMs: number, maxTsMs: number | null): number[] {
+  if (previousMs === null || !(currentMs > previousMs) || maxTsMs === null) return []
+  const out: number[] = []
+  const limit = Math.min(currentMs, maxTsMs + 1)
+  for (let s = windowStartOf(spec, previousMs - 1); s < limit; s = windowEndOf(spec, s)) {
+    const end = windowEndOf(spec, s)
+    if (end > previousMs && end <= currentMs) out.push(s)
+    if (out.length > 100_000) break
   }
-  return [...by.entries()]
-    .sort((a, b) => a[0] - b[0])
-    .map(([start, counts]) => ({ window_start: new Date(start).toISOString(), counts }))
+  return out
 }

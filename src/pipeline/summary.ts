@@ -1,5 +1,5 @@
 /** The machine-readable summary of one run (`--json` on stdout) and its `runs/` row. */
-import type { RunRow, Verdict } from '../types.js'
+import type { RunRow, ShiftRow, Verdict } from '../types.js'
 
 /** Verdict counts of one window family. */
 export interface WindowVerdicts {
@@ -68,4 +68,20 @@ export function newRunId(nowMs: number, random: () => number = Math.random): str
     .toString(16)
     .padStart(4, '0')
   return `r${stamp}-${tail}`
+}
+
+/** Verdict counts per window, sorted by window start. */
+export function verdictCounts(shifts: readonly ShiftRow[]): WindowVerdicts[] {
+  const by = new Map<number, { shift: number; steady: number; thin: number; flat: number }>()
+  for (const s of shifts) {
+    let c = by.get(s.window_start)
+    if (c === undefined) {
+      c = { shift: 0, steady: 0, thin: 0, flat: 0 }
+      by.set(s.window_start, c)
+    }
+    c[s.verdict] += 1
+  }
+  return [...by.entries()]
+    .sort((a, b) => a[0] - b[0])
+    .map(([start, counts]) => ({ window_start: new Date(start).toISOString(), counts }))
 }

@@ -107,6 +107,8 @@ export interface WindowRef {
 export interface ReadPartialsOptions extends PartialsDbOptions {
   /** Keep only these (series, window) pairs (default: everything). An empty list reads nothing. */
   readonly windows?: readonly WindowRef[]
+  /** Keep only these window starts (epoch ms), every series (default: everything). An empty list reads nothing. */
+  readonly windowStarts?: readonly number[]
 }
 
 /** `<root>/_state/partials`. */
@@ -215,11 +217,15 @@ export async function readPartials(
   files: readonly string[],
   options: ReadPartialsOptions = {},
 ): Promise<PartialMoments[]> {
-  if (files.length === 0 || options.windows?.length === 0) return []
+  if (files.length === 0 || options.windows?.length === 0 || options.windowStarts?.length === 0) return []
   const wanted =
     options.windows === undefined ? null : new Set(options.windows.map((w) => windowKey(w.seriesId, w.windowStartMs)))
   const starts =
-    options.windows === undefined ? null : [...new Set(options.windows.map((w) => Math.trunc(w.windowStartMs)))]
+    options.windows !== undefined
+      ? [...new Set(options.windows.map((w) => Math.trunc(w.windowStartMs)))]
+      : options.windowStarts !== undefined
+        ? [...new Set(options.windowStarts.map((s) => Math.trunc(s)))]
+        : null
   const names = partialsColumns.map(([n]) => n)
   const sql =
     `SELECT ${names.join(', ')}, filename FROM read_parquet([${files.map(sqlString).join(', ')}], filename = true)` +

@@ -1,8 +1,12 @@
 /**
  * Parquet writers for the published tables (design.md "Output tables", "Publish"; io-evaluation.md §4).
  *
- * Path: rows are checked against the column specs of columns.ts and loaded, 2,048 at a time, into a DuckDB temp
- * table through the appender's data-chunk path (column-major; faster than per-cell appends). Then one
+ * Path: rows are checked against the column specs of columns.ts and set, 2,048 at a time, straight into the vectors
+ * of a DuckDB data chunk that the appender adds to a temp table. Counts and timestamps travel as DOUBLE (exact for
+ * safe integers and for epoch ms), so the load allocates no BigInt or value object per cell: the first version
+ * (TIMESTAMPTZ/BIGINT values built in JS) spent most of its time in the garbage collector. The SQL then casts them:
+ * `CAST(n AS BIGINT)`, `make_timestamptz(CAST(round(ms * 1000) AS BIGINT))` (µs since the epoch, independent of the
+ * session TimeZone). One
  * `COPY (SELECT … WHERE partition … ORDER BY …) TO '<part-0.parquet>.tmp-<pid>' (FORMAT parquet, COMPRESSION …)` per
  * partition writes the file. `COPY … PARTITION_BY` is not used: it names files itself and may split a partition into
  * several files, while every partition here is exactly one file with a fixed name. When every temp of the call is
@@ -14,18 +18,7 @@
  * window_start (runs: started_at, run_id), so the same rows always give the same bytes.
  */
 import { join } from 'node:path'
-import {
-  BIGINT,
-  BOOLEAN,
-  DOUBLE,
-  type DuckDBConnection,
-  DuckDBDataChunk,
-  DuckDBTimestampTZValue,
-  type DuckDBType,
-  type DuckDBValue,
-  TIMESTAMPTZ,
-  VARCHAR,
-} from '@duckdb/node-api'
+import { BOOLEAN, DOUBLE, type DuckDBConnection, DuckDBDataChunk, type DuckDBType, VARCHAR } from '@duckdb/node-api'
 import { DataError, ExitCode, IoError, SlopeshiftError } from '../errors.js'
 import { type SeriesKey, seriesId } from '../types.js'
 import {
@@ -63,6 +56,18 @@ export interface WriteTableOptions {
    * Must be on the same file system as `dir`.
    */
   readonly stagingDir?: string
+  /**
+   * {@link replaceWindows} only: window starts (epoch ms) whose rows are replaced as a whole — every existing row
+   * with such a `window_start` is dropped, whether or not a new row has its identity.
+   */
+  readonly replaceWindowStarts?: readonly number[]
+}
+
+/** What {@link replaceWindows} did: files written, and partitions left empty (their file is to be removed). */
+export interface ReplaceResult {
+  readonly written: readonly WrittenPartition[]
+  /** Partition folder names (e.g. `window_date=2026-03-01`) whose file must be removed: no rows remain. */
+  readonly removed: readonly string[]
 }
 
 /** One partition file written by a call. */
@@ -100,7 +105,7 @@ export async function writeTable<T extends TableName>(
   rows: readonly TableRows[T][],
   options: WriteTableOptions,
 ): Promise<readonly WrittenPartition[]> {
-  return writePartitions(table, rows, options, false)
+  return (await writePartitions(table, rows, options, false)).written
 }
 
 /**
@@ -118,6 +123,20 @@ export async function replacePartitions<T extends TableName>(
   rows: readonly TableRows[T][],
   options: WriteTableOptions,
 ): Promise<readonly WrittenPartition[]> {
+  return (await writePartitions(table, rows, options, true)).written
+}
+
+/**
+ * Window-level form of {@link replacePartitions} for incremental runs (fits, shifts): every existing row whose
+ * `window_start` is in `options.replaceWindowStarts` is dropped, then the new rows are added. Partitions holding
+ * those windows are rewritten even when no new row falls in them; a partition left with no rows is reported in
+ * `removed` (its file is not written, the caller removes the published one at publish time).
+ */
+export async function replaceWindows<T extends 'fits' | 'shifts'>(
+  table: T,
+  rows: readonly TableRows[T][],
+  options: WriteTableOptions,
+): Promise<ReplaceResult> {
   return writePartitions(table, rows, options, true)
 }
 
@@ -126,19 +145,26 @@ async function writePartitions(
   rows: readonly unknown[],
   options: WriteTableOptions,
   mergeExisting: boolean,
-): Promise<readonly WrittenPartition[]> {
+): Promise<ReplaceResult> {
   const keyColumns = tableSpecs[table].hasKey ? options.keyColumns : []
   const columns = tableColumns(table, keyColumns)
   const loaded = prepareRows(table, columns, keyColumns, rows)
-  if (loaded.partitionRows.size === 0) return []
+  const replaceStarts = mergeExisting ? [...new Set(options.replaceWindowStarts ?? [])].sort((a, b) => a - b) : []
+  const partitions = new Set(loaded.partitionRows.keys())
+  for (const start of replaceStarts) {
+    const name = partitionName(table, start)
+    if (name !== null) partitions.add(name)
+  }
+  if (partitions.size === 0) return { written: [], removed: [] }
   const outDir = options.stagingDir ?? options.dir
   return withConnection(options.connection, async (connection) => {
     const loadTable = uniqueTempTableName('slopeshift_load')
     const pending: PendingFile[] = []
     const written: WrittenPartition[] = []
+    const removed: string[] = []
     try {
-      await loadRows(connection, loadTable, columns, loaded)
-      for (const partition of [...loaded.partitionRows.keys()].sort()) {
+      await loadRows(connection, table, loadTable, columns, loaded)
+      for (const partition of [...partitions].sort()) {
         const folder = join(outDir, partition)
         await makeDir(folder)
         const finalPath = join(folder, partitionFileName)
@@ -154,7 +180,14 @@ async function writePartitions(
           existing,
           tempPath,
           compression: options.compression,
+          replaceStarts,
         })
+        if (rowCount === 0 && !loaded.partitionRows.has(partition)) {
+          pending.pop()
+          await removeQuietly([tempPath])
+          if (existing !== null) removed.push(partition)
+          continue
+        }
         await syncFile(tempPath)
         written.push({ partition, path: finalPath, rows: rowCount })
       }
@@ -165,17 +198,24 @@ async function writePartitions(
       await connection.run(`DROP TABLE IF EXISTS ${quoteIdent(loadTable)}`).catch(() => undefined)
     }
     await renameAll(pending, true)
-    return written
+    return { written, removed }
   })
 }
 
-/** Rows checked and turned into DuckDB values, column-major, plus the row count per partition. */
+/** Rows with checked keys and identities, and the partition of each row. */
 interface LoadedRows {
-  /** One array per column (in `columns` order) and a last one with the partition name. */
-  readonly values: DuckDBValue[][]
+  readonly rows: readonly Record<string, unknown>[]
+  readonly keys: readonly (SeriesKey | null)[]
+  /** Partition folder name of each row. */
+  readonly partitions: readonly string[]
   readonly partitionRows: Map<string, number>
 }
 
+/**
+ * Checks the shape of each row (an object, a key of the right length, a usable partition instant, no repeated
+ * identity) and finds its partition. Column values are checked while loading (see loadRows), still before any file
+ * is written.
+ */
 function prepareRows(
   table: TableName,
   columns: readonly ColumnSpec[],
@@ -183,11 +223,14 @@ function prepareRows(
   rows: readonly unknown[],
 ): LoadedRows {
   const spec = tableSpecs[table]
-  const values: DuckDBValue[][] = [...columns.map(() => []), []]
+  const records: Record<string, unknown>[] = []
+  const keys: (SeriesKey | null)[] = []
+  const partitions: string[] = []
   const partitionRows = new Map<string, number>()
   const seen = new Set<string>()
   const identity = spec.identity
-  const converters = columns.map(converterFor)
+  const sourceColumn = columns.find((c) => c.name === spec.partitionSource) as ColumnSpec
+  const sourceConverter = converterFor(sourceColumn)
   const partitionOfDay = new Map<number, string>()
   for (const [index, row] of rows.entries()) {
     if (typeof row !== 'object' || row === null) throw rowError(table, index, null, 'is not an object')
@@ -198,27 +241,23 @@ function prepareRows(
       throw rowError(table, index, key, `repeats the identity (${identityColumns(table, keyColumns).join(', ')})`)
     }
     seen.add(id)
-    for (let c = 0; c < columns.length; c++) {
-      const column = columns[c] as ColumnSpec
-      const converter = converters[c] as Converter
-      const raw = column.role === 'key' ? (key?.[c] ?? null) : record[column.name]
-      const value = converter.convert(raw)
-      if (value === invalid) throw valueError(table, index, key, column, converter.expected, raw)
-      ;(values[c] as DuckDBValue[]).push(value)
+    const source = record[spec.partitionSource]
+    if (sourceConverter.convert(source) === invalid) {
+      throw valueError(table, index, key, sourceColumn, sourceConverter.expected, source)
     }
-    // The partition source is a TIMESTAMPTZ column, so the converter has already checked it is a finite epoch ms.
-    const source = record[spec.partitionSource] as number
-    const day = Math.floor(source / dayMs)
+    const day = Math.floor((source as number) / dayMs)
     let partition = partitionOfDay.get(day) ?? null
     if (partition === null) {
-      partition = partitionName(table, source)
+      partition = partitionName(table, source as number)
       if (partition === null) throw rowError(table, index, key, `has ${spec.partitionSource} out of range (${source})`)
       partitionOfDay.set(day, partition)
     }
-    ;(values[columns.length] as DuckDBValue[]).push(partition)
+    records.push(record)
+    keys.push(key)
+    partitions.push(partition)
     partitionRows.set(partition, (partitionRows.get(partition) ?? 0) + 1)
   }
-  return { values, partitionRows }
+  return { rows: records, keys, partitions, partitionRows }
 }
 
 function checkKey(table: TableName, index: number, key: unknown, length: number): SeriesKey {
@@ -236,16 +275,19 @@ const maxTimestampMs = 8.64e15
 /** What a converter returns for a value its column cannot hold. */
 const invalid: unique symbol = Symbol('invalid')
 
-/** Checks one value for a column and turns it into a DuckDB value (null passes only when the column is nullable). */
+/** A value as loaded: counts and epoch ms as DOUBLE, strings, booleans, null. */
+type LoadValue = number | string | boolean | null
+
+/** Checks one value for a column and returns what is loaded (null passes only when the column is nullable). */
 interface Converter {
-  readonly convert: (raw: unknown) => DuckDBValue | typeof invalid
+  readonly convert: (raw: unknown) => LoadValue | typeof invalid
   /** What the column expects, for the error message. */
   readonly expected: string
 }
 
 /** One converter per column, chosen once per write rather than per value (the load loop runs per cell). */
 function converterFor(column: ColumnSpec): Converter {
-  const convert = ((): ((raw: unknown) => DuckDBValue | typeof invalid) => {
+  const convert = ((): ((raw: unknown) => LoadValue | typeof invalid) => {
     const allowed = column.values
     switch (column.type) {
       case 'VARCHAR':
@@ -253,17 +295,14 @@ function converterFor(column: ColumnSpec): Converter {
           ? (raw) => (typeof raw === 'string' ? raw : invalid)
           : (raw) => (typeof raw === 'string' && allowed.includes(raw) ? raw : invalid)
       case 'BIGINT':
-        return (raw) => (typeof raw === 'number' && Number.isSafeInteger(raw) ? BigInt(raw) : invalid)
+        return (raw) => (typeof raw === 'number' && Number.isSafeInteger(raw) ? raw : invalid)
       case 'DOUBLE':
         return (raw) => (typeof raw === 'number' ? raw : invalid)
       case 'BOOLEAN':
         return (raw) => (typeof raw === 'boolean' ? raw : invalid)
       case 'TIMESTAMPTZ':
-        // Stored in µs (DuckDB TIMESTAMPTZ): whole ms round-trip exactly, fractions are rounded to the µs.
-        return (raw) =>
-          typeof raw === 'number' && Math.abs(raw) <= maxTimestampMs
-            ? new DuckDBTimestampTZValue(BigInt(Math.round(raw * 1000)))
-            : invalid
+        // Loaded as epoch ms; stored in µs (DuckDB TIMESTAMPTZ): whole ms round-trip exactly, fractions are rounded.
+        return (raw) => (typeof raw === 'number' && Math.abs(raw) <= maxTimestampMs ? raw : invalid)
     }
   })()
   const expected = {
@@ -304,24 +343,63 @@ function rowError(table: TableName, index: number, key: SeriesKey | null, proble
   )
 }
 
-const duckTypes: Readonly<Record<ColumnType, DuckDBType>> = { VARCHAR, BIGINT, DOUBLE, BOOLEAN, TIMESTAMPTZ }
+/** Load-table type of a column: counts and timestamps travel as DOUBLE (see the module comment). */
+const loadTypes: Readonly<Record<ColumnType, DuckDBType>> = {
+  VARCHAR,
+  BIGINT: DOUBLE,
+  DOUBLE,
+  BOOLEAN,
+  TIMESTAMPTZ: DOUBLE,
+}
 
+/** SQL that turns a load-table column (alias `alias`) into its published type. */
+function publishedExpr(column: ColumnSpec): string {
+  const name = quoteIdent(column.name)
+  switch (column.type) {
+    case 'BIGINT':
+      return `CAST(${name} AS BIGINT) AS ${name}`
+    case 'TIMESTAMPTZ':
+      return `make_timestamptz(CAST(round(${name} * 1000) AS BIGINT)) AS ${name}`
+    default:
+      return name
+  }
+}
+
+/** Checks every value and loads the rows into a new temp table, 2,048 rows per data chunk, column by column. */
 async function loadRows(
   connection: DuckDBConnection,
+  table: TableName,
   loadTable: string,
   columns: readonly ColumnSpec[],
   loaded: LoadedRows,
 ): Promise<void> {
-  const defs = [...columns.map((c) => `${quoteIdent(c.name)} ${c.type}`), `${quoteIdent(partColumn)} VARCHAR`]
+  const types = [...columns.map((c) => loadTypes[c.type]), VARCHAR]
+  const defs = [...columns.map((c, i) => `${quoteIdent(c.name)} ${types[i]}`), `${quoteIdent(partColumn)} VARCHAR`]
   await connection.run(`CREATE TEMP TABLE ${quoteIdent(loadTable)} (${defs.join(', ')})`)
-  const types = [...columns.map((c) => duckTypes[c.type]), VARCHAR]
-  const total = loaded.values[0]?.length ?? 0
+  const converters = columns.map(converterFor)
+  const { rows, keys, partitions } = loaded
   const appender = await connection.createAppender(loadTable)
   try {
-    for (let offset = 0; offset < total; offset += chunkRows) {
-      const end = Math.min(offset + chunkRows, total)
-      const chunk = DuckDBDataChunk.create(types, end - offset)
-      chunk.setColumns(loaded.values.map((column) => column.slice(offset, end)))
+    for (let offset = 0; offset < rows.length; offset += chunkRows) {
+      const count = Math.min(chunkRows, rows.length - offset)
+      const chunk = DuckDBDataChunk.create(types, count)
+      for (let c = 0; c < columns.length; c++) {
+        const column = columns[c] as ColumnSpec
+        const { convert, expected } = converters[c] as Converter
+        const vector = chunk.getColumnVector(c)
+        for (let i = 0; i < count; i++) {
+          const index = offset + i
+          const key = keys[index] ?? null
+          const raw = column.role === 'key' ? (key?.[c] ?? null) : rows[index]?.[column.name]
+          const value = convert(raw)
+          if (value === invalid) throw valueError(table, index, key, column, expected, raw)
+          vector.setItem(i, value)
+        }
+        vector.flush()
+      }
+      const partVector = chunk.getColumnVector(columns.length)
+      for (let i = 0; i < count; i++) partVector.setItem(i, partitions[offset + i] ?? null)
+      partVector.flush()
       appender.appendDataChunk(chunk)
     }
     appender.flushSync()
@@ -340,13 +418,18 @@ interface CopyPlan {
   readonly existing: string | null
   readonly tempPath: string
   readonly compression: Compression
+  /** Window starts (epoch ms) whose existing rows are all dropped. */
+  readonly replaceStarts?: readonly number[]
 }
 
 /** Writes one partition file with COPY; returns the number of rows written. */
 async function copyPartition(connection: DuckDBConnection, plan: CopyPlan): Promise<number> {
   const list = plan.columns.map((c) => quoteIdent(c.name)).join(', ')
   const part = quoteLiteral(plan.partition)
-  let source = `SELECT ${list} FROM ${quoteIdent(plan.loadTable)} WHERE ${quoteIdent(partColumn)} = ${part}`
+  // `n`: the new rows of this partition, in their published types.
+  let source =
+    `WITH n AS (SELECT ${plan.columns.map(publishedExpr).join(', ')} FROM ${quoteIdent(plan.loadTable)} ` +
+    `WHERE ${quoteIdent(partColumn)} = ${part}) SELECT ${list} FROM n`
   if (plan.existing !== null) {
     const match = identityColumns(plan.table, plan.keyColumns)
       .map((c) => `n.${quoteIdent(c)} IS NOT DISTINCT FROM e.${quoteIdent(c)}`)
@@ -354,8 +437,10 @@ async function copyPartition(connection: DuckDBConnection, plan: CopyPlan): Prom
     source +=
       ` UNION ALL SELECT ${plan.columns.map((c) => `e.${quoteIdent(c.name)}`).join(', ')}` +
       ` FROM read_parquet(${quoteLiteral(plan.existing)}, hive_partitioning = false) AS e` +
-      ` WHERE NOT EXISTS (SELECT 1 FROM ${quoteIdent(plan.loadTable)} AS n` +
-      ` WHERE n.${quoteIdent(partColumn)} = ${part} AND ${match})`
+      ` WHERE NOT EXISTS (SELECT 1 FROM n WHERE ${match})`
+    if (plan.replaceStarts !== undefined && plan.replaceStarts.length > 0) {
+      source += ` AND epoch_ms(e.window_start) NOT IN (${plan.replaceStarts.map((s) => String(Math.trunc(s))).join(', ')})`
+    }
   }
   const order = orderColumns(plan.table, plan.keyColumns)
     .map((c) => `${quoteIdent(c)} ASC NULLS FIRST`)
