@@ -344,21 +344,28 @@ class FileAccumulator {
 
   /** Partial moments of every (series, window), checked finite, sorted by series id then window start. */
   finish(): PartialMoments[] {
-    const out: { id: string; p: PartialMoments }[] = []
-    for (let k = 0; k < this.slots.size; k++) {
-      const key = this.seriesKeys[this.index.seriesOfSlot[k] as number] as SeriesKey
-      const windowStartMs = this.cursor.windowStartMs[this.index.windowOfSlot[k] as number] as number
+    const ids = this.seriesKeys.map((key) => seriesId(key))
+    const order = Array.from({ length: this.slots.size }, (_, k) => k)
+    const seriesOf = (k: number): number => this.index.seriesOfSlot[k] as number
+    const startOf = (k: number): number => this.cursor.windowStartMs[this.index.windowOfSlot[k] as number] as number
+    order.sort((a, b) => {
+      const ia = ids[seriesOf(a)] as string
+      const ib = ids[seriesOf(b)] as string
+      return ia < ib ? -1 : ia > ib ? 1 : startOf(a) - startOf(b)
+    })
+    return order.map((k) => {
+      const key = this.seriesKeys[seriesOf(k)] as SeriesKey
+      const windowStartMs = startOf(k)
       const moments = slotMoments(this.slots, k)
       const reason = invalidMomentsReason(moments)
       if (reason !== null) {
+        const id = ids[seriesOf(k)] as string
         throw new DataError(
-          `moments of series ${seriesId(key)} in window ${new Date(windowStartMs).toISOString()} from ${basename(this.file.path)} are not valid (${reason}); check the file for values beyond ±1e154`,
-          { context: { file: this.file.path, key: seriesId(key) } },
+          `moments of series ${id} in window ${new Date(windowStartMs).toISOString()} from ${basename(this.file.path)} are not valid (${reason}); check the file for values beyond ±1e154`,
+          { context: { file: this.file.path, key: id } },
         )
       }
-      out.push({ id: seriesId(key), p: { file: this.file.path, key, windowStartMs, moments } })
-    }
-    out.sort((a, b) => (a.id < b.id ? -1 : a.id > b.id ? 1 : a.p.windowStartMs - b.p.windowStartMs))
-    return out.map((e) => e.p)
+      return { file: this.file.path, key, windowStartMs, moments }
+    })
   }
 }

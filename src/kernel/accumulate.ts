@@ -287,39 +287,39 @@ function accumulateLagged(s: MomentSlots, len: number, slot: Int32Array, x: Floa
  */
 export function slotMoments(slots: MomentSlots, k: number): Moments {
   if (k < 0 || k >= slots.size) throw new RangeError(`slot ${k} is not in use (size ${slots.size})`)
-  const at = (a: Float64Array): number => a[k] as number
+  const n = slots.n[k] as number
   const m: Moments = {
-    n: at(slots.n),
+    n,
     // unweighted loops do not store Σw: it equals n
-    wSum: slots.weighted ? at(slots.wSum) : at(slots.n),
-    xMean: at(slots.xMean),
-    yMean: at(slots.yMean),
-    sxx: at(slots.sxx),
-    syy: at(slots.syy),
-    sxy: at(slots.sxy),
-    xMin: at(slots.xMin),
-    xMax: at(slots.xMax),
-    skipped: at(slots.skipped),
+    wSum: slots.weighted ? (slots.wSum[k] as number) : n,
+    xMean: slots.xMean[k] as number,
+    yMean: slots.yMean[k] as number,
+    sxx: slots.sxx[k] as number,
+    syy: slots.syy[k] as number,
+    sxy: slots.sxy[k] as number,
+    xMin: slots.xMin[k] as number,
+    xMax: slots.xMax[k] as number,
+    skipped: slots.skipped[k] as number,
     lag: null,
   }
   if (slots.trackLag) {
     m.lag =
-      m.n === 0
+      n === 0
         ? emptyLag()
         : {
-            pairs: at(slots.pairs),
-            curXMean: at(slots.curXMean),
-            curYMean: at(slots.curYMean),
-            prevXMean: at(slots.prevXMean),
-            prevYMean: at(slots.prevYMean),
-            cYy1: at(slots.cYy1),
-            cYx1: at(slots.cYx1),
-            cXy1: at(slots.cXy1),
-            cXx1: at(slots.cXx1),
-            firstX: at(slots.firstX),
-            firstY: at(slots.firstY),
-            lastX: at(slots.lastX),
-            lastY: at(slots.lastY),
+            pairs: slots.pairs[k] as number,
+            curXMean: slots.curXMean[k] as number,
+            curYMean: slots.curYMean[k] as number,
+            prevXMean: slots.prevXMean[k] as number,
+            prevYMean: slots.prevYMean[k] as number,
+            cYy1: slots.cYy1[k] as number,
+            cYx1: slots.cYx1[k] as number,
+            cXy1: slots.cXy1[k] as number,
+            cXx1: slots.cXx1[k] as number,
+            firstX: slots.firstX[k] as number,
+            firstY: slots.firstY[k] as number,
+            lastX: slots.lastX[k] as number,
+            lastY: slots.lastY[k] as number,
             inOrder: slots.inOrder[k] === 1,
           }
   }
