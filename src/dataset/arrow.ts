@@ -220,6 +220,9 @@ function layoutOf(file: SourceFile, plan: MomentsPlan, schema: Schema): FileLayo
   }
 }
 
+/** Value ids of the second and later key columns must stay below this (2^22) to pair exactly in a double. */
+const pairBase = 2 ** 22
+
 /** Accumulates the batches of one file. */
 class FileAccumulator {
   private readonly file: SourceFile
@@ -235,12 +238,14 @@ class FileAccumulator {
   private readonly varying: number[]
   /** Single varying key: value id → series id (−1 = not yet). */
   private seriesOfValue = new Int32Array(64).fill(-1)
-  /** Several varying keys: combined id → series id. */
-  private readonly seriesOfTuple = new Map<string, number>()
+  /** Several varying keys: per extra key column, (tuple id, value id) → tuple id (series id at the last). */
+  private readonly tupleLevels: Map<number, number>[] = []
   private readonly seriesKeys: SeriesKey[] = []
+  private readonly keyNames: readonly string[]
 
   constructor(file: SourceFile, plan: MomentsPlan, schema: Schema) {
     this.file = file
+    this.keyNames = plan.keys
     this.layout = layoutOf(file, plan, schema)
     this.slots = new MomentSlots({ weighted: plan.weight !== null, trackLag: plan.trackLag })
     this.index = new SlotIndex(this.slots)
@@ -300,19 +305,39 @@ class FileAccumulator {
         out[i] = sid
       }
     } else {
-      const tuple: number[] = new Array<number>(valueIds.length)
-      for (let i = 0; i < length; i++) {
-        for (let j = 0; j < valueIds.length; j++) tuple[j] = (valueIds[j] as Int32Array)[i] as number
-        const k = tuple.join(',')
-        let sid = this.seriesOfTuple.get(k)
-        if (sid === undefined) {
-          sid = this.seriesFor(tuple)
-          this.seriesOfTuple.set(k, sid)
+      // fold the key columns pairwise into dense tuple ids, (tuple id so far, next value id) →
+      // tuple id, with numeric Map keys (no string per row); the last level's ids are series ids
+      const last = valueIds.length - 1
+      out.set((valueIds[0] as Int32Array).subarray(0, length))
+      for (let j = 1; j <= last; j++) {
+        let level = this.tupleLevels[j - 1]
+        if (level === undefined) {
+          level = new Map<number, number>()
+          this.tupleLevels[j - 1] = level
         }
-        out[i] = sid
+        const ids = valueIds[j] as Int32Array
+        for (let i = 0; i < length; i++) {
+          const v = ids[i] as number
+          if (v >= pairBase) throw this.tooManyValues(j)
+          const pair = (out[i] as number) * pairBase + v
+          let t = level.get(pair)
+          if (t === undefined) {
+            t = j === last ? this.seriesFor(valueIds.map((c) => c[i] as number)) : level.size
+            level.set(pair, t)
+          }
+          out[i] = t
+        }
       }
     }
     this.index.reserveSeries(this.seriesKeys.length)
+  }
+
+  private tooManyValues(pos: number): DataError {
+    const column = this.keyNames[this.varying[pos] as number] ?? `#${pos}`
+    return new DataError(
+      `key column "${column}" of ${basename(this.file.path)} has more than ${pairBase} distinct values; split the file or use fewer key columns`,
+      { context: { file: this.file.path, column } },
+    )
   }
 
   private newSingleSeries(valueId: number): number {
