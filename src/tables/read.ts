@@ -94,41 +94,42 @@ export async function readTable<T extends TableName>(
   const columns = tableColumns(table, keys)
   const files = await listTableFiles(table, dir)
   if (files.length === 0) return []
-  const select = columns.map((c) =>
-    c.type === 'TIMESTAMPTZ' ? `epoch_us(${quoteIdent(c.name)}) AS ${quoteIdent(c.name)}` : quoteIdent(c.name),
-  )
+  const select = columns.map(readExpr)
   const order = orderColumns(table, keys).map((c) => `${quoteIdent(c)} ASC NULLS FIRST`)
   const sql =
     `SELECT ${select.join(', ')} FROM read_parquet([${files.map(quoteLiteral).join(', ')}], hive_partitioning = true)` +
     ` ORDER BY ${order.join(', ')}`
   return withConnection(options.connection, async (connection) => {
     await checkColumns(connection, table, dir, files, columns)
-    let data: unknown[][]
+    const converters = columns.map(fromDuckConverter)
+    const rows: TableRows[T][] = []
     try {
-      data = (await connection.runAndReadAll(sql)).getColumnsJS()
+      const result = await connection.stream(sql)
+      for (let chunk = await result.fetchChunk(); chunk !== null && chunk.rowCount > 0; ) {
+        const vectors = columns.map((_, c) => chunk?.getColumnVector(c))
+        for (let i = 0; i < chunk.rowCount; i++) {
+          const row: Record<string, unknown> = spec.hasKey ? { key: null } : {}
+          const key: (string | null)[] = []
+          for (let c = 0; c < columns.length; c++) {
+            const column = columns[c] as ColumnSpec
+            const raw = vectors[c]?.getItem(i)
+            const value = (converters[c] as (raw: unknown) => unknown)(raw)
+            if (value === invalid) throw valueError(table, dir, column, raw)
+            if (column.role === 'key') key.push(value as string | null)
+            else row[column.name] = value
+          }
+          if (spec.hasKey) row.key = key
+          rows.push(row as unknown as TableRows[T])
+        }
+        chunk = await result.fetchChunk()
+      }
     } catch (err) {
+      if (err instanceof DataError) throw err
       throw new DataError(
         `cannot read the ${table} table in ${dir} (${errnoCode(err)}); its files must have the columns ` +
           `${columns.map((c) => c.name).join(', ')}: check the configured key columns`,
         { context: { file: dir }, cause: err },
       )
-    }
-    const rowCount = data[0]?.length ?? 0
-    const converters = columns.map(fromDuckConverter)
-    const rows: TableRows[T][] = []
-    for (let i = 0; i < rowCount; i++) {
-      const row: Record<string, unknown> = spec.hasKey ? { key: null } : {}
-      const key: (string | null)[] = []
-      for (let c = 0; c < columns.length; c++) {
-        const column = columns[c] as ColumnSpec
-        const raw = (data[c] as unknown[])[i]
-        const value = (converters[c] as (raw: unknown) => unknown)(raw)
-        if (value === invalid) throw valueError(table, dir, column, raw)
-        if (column.role === 'key') key.push(value as string | null)
-        else row[column.name] = value
-      }
-      if (spec.hasKey) row.key = key
-      rows.push(row as unknown as TableRows[T])
     }
     return rows
   })
@@ -156,10 +157,29 @@ async function checkColumns(
   )
 }
 
+/**
+ * SQL that reads a column as a plain JS-friendly value: timestamps as epoch ms DOUBLE (`epoch_us / 1000`, exact to
+ * the µs while |µs| < 2^53, i.e. up to year 2255), counts as DOUBLE with an error beyond 2^53; no BigInt per cell.
+ */
+function readExpr(column: ColumnSpec): string {
+  const name = quoteIdent(column.name)
+  switch (column.type) {
+    case 'TIMESTAMPTZ':
+      return `CAST(epoch_us(${name}) AS DOUBLE) / 1000 AS ${name}`
+    case 'BIGINT':
+      return (
+        `CASE WHEN abs(${name}) > 9007199254740991 THEN error(${quoteLiteral(`column "${column.name}" holds a count beyond 2^53`)})` +
+        ` ELSE CAST(${name} AS DOUBLE) END AS ${name}`
+      )
+    default:
+      return name
+  }
+}
+
 /** What a converter returns for a value the row type does not allow. */
 const invalid: unique symbol = Symbol('invalid')
 
-/** Converts one value as DuckDB returns it (`epoch_us` BIGINT for timestamps) into the row field; chosen per column. */
+/** Checks one value as {@link readExpr} returns it and gives the row field; chosen per column. */
 function fromDuckConverter(column: ColumnSpec): (raw: unknown) => unknown {
   const convert = ((): ((raw: unknown) => unknown) => {
     const allowed = column.values
@@ -169,12 +189,9 @@ function fromDuckConverter(column: ColumnSpec): (raw: unknown) => unknown {
           ? (raw) => (typeof raw === 'string' ? raw : invalid)
           : (raw) => (typeof raw === 'string' && allowed.includes(raw) ? raw : invalid)
       case 'BIGINT':
-        return (raw) => {
-          const value = typeof raw === 'bigint' ? Number(raw) : Number.NaN
-          return Number.isSafeInteger(value) ? value : invalid
-        }
+        return (raw) => (typeof raw === 'number' && Number.isSafeInteger(raw) ? raw : invalid)
       case 'TIMESTAMPTZ':
-        return (raw) => (typeof raw === 'bigint' ? Number(raw) / 1000 : invalid)
+        return (raw) => (typeof raw === 'number' ? raw : invalid)
       case 'DOUBLE':
         return (raw) => (typeof raw === 'number' ? raw : invalid)
       case 'BOOLEAN':
@@ -188,11 +205,9 @@ function valueError(table: TableName, dir: string, column: ColumnSpec, raw: unkn
   const problem =
     raw === null || raw === undefined
       ? 'holds a null but is required'
-      : column.type === 'BIGINT' && typeof raw === 'bigint'
-        ? `holds ${raw}, beyond 2^53`
-        : column.values !== undefined && typeof raw === 'string'
-          ? `holds unknown value "${raw}" (allowed: ${column.values.join(', ')})`
-          : `holds ${typeof raw}, expected ${column.type}`
+      : column.values !== undefined && typeof raw === 'string'
+        ? `holds unknown value "${raw}" (allowed: ${column.values.join(', ')})`
+        : `holds ${typeof raw}, expected ${column.type}`
   return new DataError(
     `${table} table in ${dir}: column "${column.name}" ${problem}; move the old table folder away and rerun to rebuild it`,
     { context: { file: dir, column: column.name } },

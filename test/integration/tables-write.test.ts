@@ -378,4 +378,19 @@ describe('readTable', () => {
       /column "status" holds unknown value "paused" \(allowed: ok, failed, stopped\)/,
     )
   })
+
+  it('throws a DataError when a file holds a count beyond 2^53', async () => {
+    const dir = freshDir('runs')
+    await writeTable('runs', [runRow('r1', day0)], { keyColumns: [], dir, compression: 'zstd', connection })
+    const file = join(dir, 'run_date=2026-03-01', 'part-0.parquet')
+    await connection.run(
+      `COPY (SELECT * REPLACE (CAST(1 AS BIGINT) << 60 AS rows_read) FROM read_parquet('${file}')) TO '${file}.other' (FORMAT parquet)`,
+    )
+    await rm(file)
+    await connection.run(`COPY (SELECT * FROM read_parquet('${file}.other')) TO '${file}' (FORMAT parquet)`)
+    await rm(`${file}.other`)
+    const error = await readTable('runs', dir, [], { connection }).catch((err: unknown) => err)
+    expect(error).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
+    expect((error as Error).message).toMatch(/column "rows_read" holds a count beyond 2\^53/)
+  })
 })
