@@ -5,7 +5,9 @@ export { publishStaged, removeStaleTemps } from './publish.js'
 export { describeParquet, listTableFiles, type ReadTableOptions, readTable } from './read.js'
 export {
   type Compression,
+  type ReplaceResult,
   replacePartitions,
+  replaceWindows,
   type WriteTableOptions,
   type WrittenPartition,
   writeTable,
