@@ -7,6 +7,8 @@ import yargs, { type Argv } from 'yargs'
 import { UsageError } from '../errors.js'
 import { checkConfigCommand } from './commands/check-config.js'
 import { demoCommand } from './commands/demo.js'
+import { explainCommand } from './commands/explain.js'
+import { notifyCommand } from './commands/notify.js'
 import { runCommand } from './commands/run.js'
 import type { CliDeps } from './deps.js'
 
@@ -18,6 +20,8 @@ export function buildCli(argv: readonly string[], deps: CliDeps): Argv {
     .command(runCommand(deps))
     .command(checkConfigCommand(deps))
     .command(demoCommand(deps))
+    .command(explainCommand(deps))
+    .command(notifyCommand(deps))
     .demandCommand(1, 'name a command, e.g. `slopeshift run --config job.yaml`')
     .strict()
     .exitProcess(false)

@@ -1,5 +1,6 @@
 import type { CommandModule } from 'yargs'
 import { loadConfig } from '../../config/load.js'
+import { UsageError } from '../../errors.js'
 import { runJob } from '../../pipeline/run.js'
 import type { RunSummary } from '../../pipeline/summary.js'
 import type { CliDeps } from '../deps.js'
@@ -10,6 +11,11 @@ interface Args {
   readonly json: boolean
   readonly progress: boolean
   readonly full: boolean
+  readonly from: string | undefined
+  readonly to: string | undefined
+  readonly verify: boolean
+  readonly 'lock-wait': number
+  readonly deliver: boolean
   readonly 'fail-on-shift': boolean
 }
 
@@ -24,17 +30,45 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
         .option('json', { type: 'boolean', default: false, describe: 'print the run summary as JSON on stdout' })
         .option('progress', { type: 'boolean', default: false, describe: 'show a progress line on a terminal' })
         .option('full', { type: 'boolean', default: false, describe: 'ignore the ledger and rebuild from every file' })
+        .option('from', { type: 'string', describe: 'also recompute windows from this instant (ISO 8601), with --to' })
+        .option('to', { type: 'string', describe: 'end (exclusive) of the --from range (ISO 8601)' })
+        .option('verify', {
+          type: 'boolean',
+          default: false,
+          describe: 'fingerprint every file, even when size and modification time are unchanged',
+        })
+        .option('lock-wait', {
+          type: 'number',
+          default: 0,
+          describe: 'seconds to wait for another run on the same output root before exiting 75',
+        })
+        .option('deliver', {
+          type: 'boolean',
+          default: true,
+          describe: 'send digests now (--no-deliver leaves them in the outbox for the next run)',
+        })
         .option('fail-on-shift', {
           type: 'boolean',
           default: false,
           describe: 'exit 1 when any series shifted (default: shifts are success, exit 0)',
         }),
     handler: async (args) => {
+      const range = timeRange(args.from, args.to)
       const { config } = await loadConfig(args.config)
       const progress = createProgress(deps.log, args.progress && deps.isTty, deps.now)
       let summary: RunSummary
       try {
-        summary = await runJob(config, { full: args.full }, { ...deps, onRows: progress.onRows })
+        summary = await runJob(
+          config,
+          {
+            full: args.full,
+            verify: args.verify,
+            lockWaitMs: Math.max(0, args['lock-wait']) * 1000,
+            noDeliver: !args.deliver,
+            ...range,
+          },
+          { ...deps, onRows: progress.onRows },
+        )
       } finally {
         progress.done()
       }
@@ -42,6 +76,18 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
       if (args['fail-on-shift'] && summary.shifts > 0) deps.setExitCode(1)
     },
   }
+}
+
+/** Parses `--from/--to` (both or neither) into epoch ms. */
+export function timeRange(from: string | undefined, to: string | undefined): { fromMs?: number; toMs?: number } {
+  if (from === undefined && to === undefined) return {}
+  if (from === undefined || to === undefined) throw new UsageError('--from and --to go together; give both or neither')
+  const fromMs = Date.parse(from)
+  const toMs = Date.parse(to)
+  if (!Number.isFinite(fromMs) || !Number.isFinite(toMs) || !(toMs > fromMs)) {
+    throw new UsageError(`--from ${from} --to ${to} is not a range of ISO 8601 instants with from < to`)
+  }
+  return { fromMs, toMs }
 }
 
 /** A short human-readable summary. */
