@@ -78,7 +78,7 @@ export async function readArrowPartials(
   let reader: RecordBatchReader | null = null
   try {
     options.signal?.throwIfAborted()
-    handle = await open(file.path, 'r')
+    handle = await openFile(file.path)
     const { size } = await handle.stat()
     if (size === 0) {
       throw new DataError(`${name} is empty (0 bytes), not an Arrow IPC file; remove it or rewrite it`, {
@@ -109,6 +109,23 @@ export async function readArrowPartials(
   } finally {
     if (reader !== null) await cancelQuietly(reader)
     if (handle !== null) await closeQuietly(handle)
+  }
+}
+
+async function openFile(path: string): Promise<FileHandle> {
+  try {
+    return await open(path, 'r')
+  } catch (err) {
+    if (err instanceof Error && (err as NodeJS.ErrnoException).code === 'ENOENT') {
+      throw new NoInputError(
+        `${basename(path)} no longer exists (removed after discovery); rerun to pick up the current files`,
+        {
+          context: { file: path },
+          cause: err,
+        },
+      )
+    }
+    throw err
   }
 }
 

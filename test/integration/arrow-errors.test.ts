@@ -188,4 +188,14 @@ describe('readArrowPartials', () => {
       /^moments of series \["cold-store-2"\] in window 2026-05-04T02:00:00\.000Z from overflow\.arrow are not valid \(syy is not finite/,
     )
   })
+
+  it('throws NoInputError naming the file when it vanished after discovery', async () => {
+    const path = join(dir, 'gone.arrow')
+    await writeArrowFile(path, workedColumns())
+    const source = await arrowSource(path)
+    await rm(path)
+    const err = await failure(readArrowPartials(source, workedPlan()))
+    expect(err).toMatchObject({ code: 'SLOPESHIFT_NO_INPUT', exitCode: 66, context: { file: path } })
+    expect((err as Error).message).toMatch(/^gone\.arrow no longer exists/)
+  })
 })
