@@ -143,5 +143,9 @@ function localMidnightToUtc(timeZone: string, year: number, month: number, day: 
   const wall = Date.UTC(year, month - 1, day)
   let t = wall - zoneOffsetMs(timeZone, wall)
   t = wall - zoneOffsetMs(timeZone, t)
+  // In a DST gap at midnight (e.g. America/Havana, America/Santiago) 00:00 does not exist and t reads
+  // as the previous evening: move it to the end of the gap, the first instant of the requested date.
+  const seen = t + zoneOffsetMs(timeZone, t)
+  if (seen < wall) t += wall - seen
   return t
 }
