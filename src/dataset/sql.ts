@@ -261,21 +261,43 @@ class Gen {
     }
   }
 
-  /** Layer 3 expression: window start in epoch ms from `ss_tm`. */
-  private windowExpr(): string {
+  /**
+   * Layers after `ss_tms` that end in `ss_win` with `ss_ws`, the window start in epoch ms.
+   *
+   * Calendar windows: truncate the local wall time in the zone, then map it back to an instant. The
+   * engines resolve an ambiguous wall time (a midnight that occurs twice when DST ends at 01:00, e.g.
+   * America/Havana) to the later instant, but the window starts at the first one (`windowStartOf`). So
+   * also try e = local midnight − the offset in force just before the engine's answer c; e wins when it
+   * is earlier and really shows local midnight. In a DST gap (00:00 does not exist) both engines and
+   * `windowStartOf` give the end of the gap.
+   */
+  private windowLayers(carry: string): string[] {
     const w = this.plan.window
     if (w.kind === 'fixed') {
-      return `${this.floorDiv('ss_tm', w.sizeMs)} * ${w.sizeMs}`
+      return [
+        `ss_win AS (\n  SELECT ${carry}, ${this.floorDiv('ss_tm', w.sizeMs)} * ${w.sizeMs} AS ss_ws FROM ss_tms\n)`,
+      ]
     }
     const unit = w.unit === 'isoweek' ? 'week' : w.unit
     const tz = quoteString(w.timeZone)
-    if (this.d === 'duckdb') {
-      // timezone('UTC', TIMESTAMP) reads the naive epoch value as UTC whatever the session zone is.
-      const inst = `timezone('UTC', epoch_ms(ss_tm))`
-      return `epoch_ms(timezone(${tz}, date_trunc('${unit}', timezone(${tz}, ${inst}))))`
-    }
-    const inst = `to_timestamp(ss_tm / 1000.0)`
-    return `CAST(EXTRACT(EPOCH FROM (date_trunc('${unit}', ${inst} AT TIME ZONE ${tz}) AT TIME ZONE ${tz})) * 1000 AS BIGINT)`
+    const duck = this.d === 'duckdb'
+    // local(i): wall-clock TIMESTAMP of instant i (epoch ms); naiveMs(ts): a wall-clock TIMESTAMP read as UTC
+    // epoch ms; instant(ts): the epoch ms at which the zone's clock shows ts.
+    const local = (i: string) =>
+      duck ? `timezone(${tz}, timezone('UTC', epoch_ms(${i})))` : `(to_timestamp((${i}) / 1000.0) AT TIME ZONE ${tz})`
+    const naiveMs = (ts: string) => (duck ? `epoch_ms(${ts})` : `CAST(EXTRACT(EPOCH FROM ${ts}) * 1000 AS BIGINT)`)
+    const instant = (ts: string) =>
+      duck
+        ? `epoch_ms(timezone(${tz}, ${ts}))`
+        : `CAST(EXTRACT(EPOCH FROM (${ts} AT TIME ZONE ${tz})) * 1000 AS BIGINT)`
+    return [
+      `ss_cal1 AS (\n  SELECT ${carry}, date_trunc('${unit}', ${local('ss_tm')}) AS ss_tr FROM ss_tms\n)`,
+      `ss_cal2 AS (\n  SELECT ${carry}, ${naiveMs('ss_tr')} AS ss_trm, ${instant('ss_tr')} AS ss_c FROM ss_cal1\n)`,
+      `ss_cal3 AS (\n  SELECT ${carry}, ss_trm, ss_c, ss_trm - (${naiveMs(local('ss_c - 1'))} - (ss_c - 1)) AS ss_e FROM ss_cal2\n)`,
+      `ss_win AS (\n  SELECT ${carry},\n` +
+        `         CASE WHEN ss_e < ss_c AND ${naiveMs(local('ss_e'))} = ss_trm THEN ss_e ELSE ss_c END AS ss_ws\n` +
+        '  FROM ss_cal3\n)',
+    ]
   }
 
   /** x in x units from `ss_t` and `ss_ws` (window start, ms). */
@@ -319,7 +341,7 @@ class Gen {
     const ctes = [
       `ss_src AS (\n  ${this.srcLayer()}\n)`,
       `ss_tms AS (\n  SELECT ${carry.join(', ')}, ${this.msExpr()} AS ss_tm FROM ss_src\n)`,
-      `ss_win AS (\n  SELECT ${carry.join(', ')}, ${this.windowExpr()} AS ss_ws FROM ss_tms\n)`,
+      ...this.windowLayers(carry.join(', ')),
       `ss_pts AS (\n  SELECT ${ptsCols.join(',\n         ')}\n  FROM ss_win\n)`,
     ]
     const outKeys = this.keys.map((k, i) => `ss_k${i} AS ${quoteIdent(k)}`)
