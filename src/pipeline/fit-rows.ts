@@ -4,8 +4,9 @@
  */
 import type { Config } from '../config/schema.js'
 import type { MergedState } from '../kernel/merge-partials.js'
-import { type WindowSpec, windowEndOf } from '../kernel/window.js'
-import { fitLine, type WeightKind } from '../stats/fit.js'
+import { msPerXUnit, type WindowSpec, windowEndOf } from '../kernel/window.js'
+import { fitLine, type LineFit, type WeightKind } from '../stats/fit.js'
+import { projectOneSpan, timeToLevel } from '../stats/projection.js'
 import { serialStats } from '../stats/serial.js'
 import type { FitRow } from '../types.js'
 
@@ -35,6 +36,7 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
     const fit = fitLine(m, { weights })
     const line = fit.kind === 'fit' ? fit : null
     const serial = line !== null && weights === 'none' ? serialStats(m, line.slope, line.rss, mode) : null
+    const proj = line === null ? noProjection : projectionColumns(line, s.windowStartMs, end, serial?.nEff, ctx.config)
     rows.push({
       key: s.key,
       window_start: s.windowStartMs,
@@ -60,20 +62,83 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
       r1: serial?.r1 ?? null,
       durbin_watson: serial?.durbinWatson ?? null,
       points_skipped: m.skipped,
-      proj_at: null,
-      proj_value: null,
-      proj_ci_low: null,
-      proj_ci_high: null,
-      proj_pi_low: null,
-      proj_pi_high: null,
-      limit_value: null,
-      limit_at: null,
-      limit_at_low: null,
-      limit_at_high: null,
-      limit_note: null,
+      ...proj,
       run_id: ctx.runId,
       computed_at: ctx.computedAtMs,
     })
   }
   return rows
+}
+
+type ProjectionColumns = Pick<
+  FitRow,
+  | 'proj_at'
+  | 'proj_value'
+  | 'proj_ci_low'
+  | 'proj_ci_high'
+  | 'proj_pi_low'
+  | 'proj_pi_high'
+  | 'limit_value'
+  | 'limit_at'
+  | 'limit_at_low'
+  | 'limit_at_high'
+  | 'limit_note'
+>
+
+const noProjection: ProjectionColumns = {
+  proj_at: null,
+  proj_value: null,
+  proj_ci_low: null,
+  proj_ci_high: null,
+  proj_pi_low: null,
+  proj_pi_high: null,
+  limit_value: null,
+  limit_at: null,
+  limit_at_low: null,
+  limit_at_high: null,
+  limit_note: null,
+}
+
+/**
+ * The line one span past the window end with its CI and PI, and (when `projection.limit` is set)
+ * when the line reaches the limit with its Fieller interval (statistics.md §2.3, §6). Uses the
+ * serial-adjusted variance when n_eff is known. Times are epoch ms.
+ */
+function projectionColumns(
+  line: LineFit,
+  startMs: number,
+  endMs: number,
+  nEff: number | undefined,
+  config: Config,
+): ProjectionColumns {
+  const unitMs = msPerXUnit[config.window.xUnit]
+  const spanL = (endMs - startMs) / unitMs
+  const p = config.projection
+  const opts = {
+    level: p.confidence,
+    warnSpans: p.warnSpans,
+    maxSpans: p.maxSpans,
+    ...(nEff === undefined ? {} : { nEff }),
+  }
+  const one = projectOneSpan(line, spanL, opts)
+  const out: { -readonly [K in keyof ProjectionColumns]: ProjectionColumns[K] } = { ...noProjection }
+  if (one !== null) {
+    out.proj_at = startMs + one.x0 * unitMs
+    out.proj_value = one.yhat
+    out.proj_ci_low = one.ci?.[0] ?? null
+    out.proj_ci_high = one.ci?.[1] ?? null
+    out.proj_pi_low = one.pi?.[0] ?? null
+    out.proj_pi_high = one.pi?.[1] ?? null
+  }
+  if (p.limit !== undefined) {
+    out.limit_value = p.limit
+    const c = timeToLevel(line, p.limit, spanL, opts)
+    if (c.kind === 'crossing') {
+      out.limit_at = startMs + c.x * unitMs
+      out.limit_at_low = startMs + c.line[0] * unitMs
+      out.limit_at_high = startMs + c.line[1] * unitMs
+      out.limit_note = c.extrapolated ? 'extrapolated' : null
+    } else out.limit_note = c.reason
+  }
+  return out
 }
