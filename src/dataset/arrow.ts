@@ -315,10 +315,14 @@ class FileAccumulator {
     })
     if (valueIds.length === 1) {
       const ids = valueIds[0] as Int32Array
+      let map = this.seriesOfValue
       for (let i = 0; i < length; i++) {
         const v = ids[i] as number
-        let sid = v < this.seriesOfValue.length ? (this.seriesOfValue[v] as number) : -1
-        if (sid < 0) sid = this.newSingleSeries(v)
+        let sid = v < map.length ? (map[v] as number) : -1
+        if (sid < 0) {
+          sid = this.newSingleSeries(v)
+          map = this.seriesOfValue
+        }
         out[i] = sid
       }
     } else {
