@@ -1,0 +1,176 @@
+import { describe, expect, it } from 'vitest'
+import {
+  lagColumns,
+  momentColumns,
+  momentsQuery,
+  momentsSql,
+  quoteIdent,
+  quoteString,
+} from '../../../src/dataset/sql.js'
+import { parseWindow, type WindowSpec } from '../../../src/kernel/window.js'
+import type { MomentsPlan } from '../../../src/types.js'
+
+const plan: MomentsPlan = {
+  keys: ['site', 'unit'],
+  x: { column: 'ts', epochUnit: 'ms' },
+  y: { column: 'power_kw' },
+  weight: null,
+  window: parseWindow('1h') as WindowSpec,
+  xUnit: 'minute',
+  trackLag: false,
+}
+const table = { kind: 'table', table: 'lake.metrics', x: { kind: 'timestamp', ticks: 'us' } } as const
+const parquet = {
+  kind: 'parquet',
+  files: ["/data/o'brien/p.parquet"],
+  x: { kind: 'timestamp', ticks: 'ns' },
+  fileKeys: ['site'],
+} as const
+
+/** SQL:2003 regression aggregates (ISO/IEC 9075-2:2003) with the dependent variable first (statistics.md §1.7). */
+const regr = ['REGR_COUNT', 'REGR_AVGX', 'REGR_AVGY', 'REGR_SXX', 'REGR_SYY', 'REGR_SXY'].map(
+  (f) => `${f}(ss_yv, ss_x)`,
+)
+
+describe('momentsSql', () => {
+  it.each(['postgres', 'ansi', 'duckdb'] as const)(
+    'uses the standard REGR_*(y, x) aggregates grouped by file, keys and window (%s)',
+    (d) => {
+      const sql = momentsSql(plan, table, d)
+      for (const agg of regr) expect(sql).toContain(agg)
+      expect(sql).toContain('MIN(ss_x) AS x_min')
+      expect(sql).toMatch(/GROUP BY ss_file, ss_k0, ss_k1, ss_ws\nORDER BY 1, 2, 3, 4$/)
+      expect(sql).toContain('FROM "lake"."metrics"')
+      expect(sql.startsWith(`-- slopeshift partial moments per (file, series, window); dialect ${d}\n`)).toBe(true)
+    },
+  )
+
+  it('keeps engine-specific functions out of the postgres and ansi text', () => {
+    for (const d of ['postgres', 'ansi'] as const) {
+      const sql = momentsSql({ ...plan, trackLag: true }, table, d)
+      for (const f of ['epoch_ms', 'epoch_us', 'epoch_ns', 'read_parquet', 'arg_min', 'arg_max', '//', 'timezone(']) {
+        expect(sql, `${d} contains ${f}`).not.toContain(f)
+      }
+      expect(sql).toContain('CAST(EXTRACT(EPOCH FROM "ts") * 1000000 AS BIGINT)')
+      expect(sql).toContain('DOUBLE PRECISION')
+      expect(sql).toContain('MOD(')
+      expect(sql).toContain('FIRST_VALUE(ss_x)')
+    }
+    expect(momentsSql(plan, table, 'ansi')).not.toContain('isfinite')
+    expect(momentsSql(plan, table, 'postgres')).toContain('CASE WHEN isfinite("ts")')
+  })
+
+  it('filters non-finite y with a predicate that also drops NaN in PostgreSQL (NaN sorts above everything)', () => {
+    expect(momentsSql(plan, table, 'postgres')).toContain(
+      'CASE WHEN ABS(ss_y) <= CAST(1.7976931348623157E308 AS DOUBLE PRECISION) THEN ss_y END AS ss_yv',
+    )
+    expect(momentsSql(plan, table, 'duckdb')).toContain('CASE WHEN isfinite(ss_y) THEN ss_y END AS ss_yv')
+  })
+
+  it('turns TIMESTAMP_NS into integer nanoseconds and subtracts the window start before the DOUBLE step', () => {
+    const sql = momentsSql(plan, parquet, 'duckdb')
+    expect(sql).toContain('epoch_ns("ts")')
+    expect(sql).toContain('CAST(ss_t - ss_ws * 1000000 AS DOUBLE) / CAST(60000000000 AS DOUBLE)')
+  })
+
+  it('reads Parquet with file names, without DuckDB Hive parsing when the caller supplies the Hive keys', () => {
+    const sql = momentsSql(plan, parquet, 'duckdb')
+    expect(sql).toContain(
+      "read_parquet(['/data/o''brien/p.parquet'], filename = true, hive_partitioning = false, union_by_name = true)",
+    )
+    expect(sql).not.toContain('"site"')
+    expect(momentsQuery(plan, parquet, 'duckdb').keys).toEqual(['unit'])
+    const own = momentsSql(plan, { ...parquet, fileKeys: undefined } as never, 'duckdb')
+    expect(own).toContain('hive_partitioning = true, hive_types_autocast = false')
+    expect(own).toContain('CAST("site" AS VARCHAR) AS ss_k0')
+  })
+
+  it('keeps the fraction of a DOUBLE epoch column and floors it only to find the window', () => {
+    const sql = momentsSql(
+      { ...plan, x: { column: 'ts', epochUnit: 's' } },
+      { ...table, x: { kind: 'epoch', integer: false } },
+      'duckdb',
+    )
+    expect(sql).toContain('CAST(FLOOR(ss_t) AS BIGINT) * 1000 AS ss_tm')
+    expect(sql).toContain('(ss_t - CAST((ss_ws // 1000) AS DOUBLE)) / CAST(60 AS DOUBLE)')
+  })
+
+  it('uses integer floor division for fixed windows, correct before 1970', () => {
+    expect(momentsSql(plan, table, 'duckdb')).toContain(
+      '(ss_tm // 3600000 - CASE WHEN ss_tm % 3600000 < 0 THEN 1 ELSE 0 END) * 3600000 AS ss_ws',
+    )
+    expect(momentsSql(plan, table, 'postgres')).toContain(
+      '((ss_tm - MOD(MOD(ss_tm, 3600000) + 3600000, 3600000)) / 3600000) * 3600000 AS ss_ws',
+    )
+  })
+
+  it('truncates calendar windows in the configured zone, ISO weeks as date_trunc week', () => {
+    const cal = { ...plan, window: parseWindow('isoweek', 'Europe/Berlin') as WindowSpec }
+    expect(momentsSql(cal, table, 'duckdb')).toContain(
+      "date_trunc('week', timezone('Europe/Berlin', timezone('UTC', epoch_ms(ss_tm)))) AS ss_tr",
+    )
+    expect(momentsSql(cal, table, 'postgres')).toContain(
+      "date_trunc('week', (to_timestamp((ss_tm) / 1000.0) AT TIME ZONE 'Europe/Berlin')) AS ss_tr",
+    )
+  })
+
+  it('adds the lag block with LAG() in arrival order and REGR_* over the pairs (statistics.md §1.7)', () => {
+    const sql = momentsSql({ ...plan, trackLag: true }, parquet, 'duckdb')
+    expect(sql).toContain('file_row_number = true')
+    expect(sql).toContain('LAG(ss_x) OVER ss_w AS ss_px')
+    expect(sql).toContain('WINDOW ss_w AS (PARTITION BY ss_file, ss_k0, ss_ws, (ss_x IS NULL) ORDER BY ss_rn)')
+    for (const f of [
+      'REGR_COUNT(ss_yv, ss_py) AS pairs',
+      'REGR_AVGY(ss_x, ss_px) AS cur_x_mean',
+      'REGR_SXY(ss_x, ss_px) AS c_xx1',
+    ]) {
+      expect(sql).toContain(f)
+    }
+    expect(sql).toContain('arg_min(ss_x, ss_rn) AS first_x')
+    const pg = momentsSql({ ...plan, trackLag: true }, { ...table, orderColumn: 'seq' }, 'postgres')
+    expect(pg).toContain('ORDER BY ss_ord, ss_rn)')
+  })
+
+  it('computes weighted co-moments in two passes joined on the group, null keys included', () => {
+    const w = { ...plan, weight: { column: 'w', kind: 'precision' as const }, trackLag: true }
+    const sql = momentsSql(w, table, 'postgres')
+    expect(sql).not.toContain('REGR_')
+    expect(sql).not.toContain('LAG(')
+    expect(sql).toContain('p.ss_k0 IS NOT DISTINCT FROM g.ss_k0')
+    expect(sql).toContain('c.ss_xx - c.ss_dx * c.ss_dx / g.ss_ws_w AS sxx')
+    expect(sql).toContain('ss_w > 0')
+  })
+
+  it('lists its output columns in order', () => {
+    expect(momentsQuery(plan, table, 'ansi').columns).toEqual([
+      'file',
+      'site',
+      'unit',
+      'window_start_ms',
+      ...momentColumns,
+    ])
+    expect(momentsQuery({ ...plan, trackLag: true }, table, 'ansi').columns).toEqual([
+      'file',
+      'site',
+      'unit',
+      'window_start_ms',
+      ...momentColumns,
+      ...lagColumns,
+    ])
+  })
+
+  it('throws a RangeError for a Parquet source outside the duckdb dialect', () => {
+    expect(() => momentsSql(plan, parquet, 'postgres')).toThrow(
+      'a Parquet file source needs the duckdb dialect, got postgres; use a table source',
+    )
+  })
+
+  it('quotes identifiers and literals so names cannot break out of the text', () => {
+    expect(quoteIdent('a"b')).toBe('"a""b"')
+    expect(quoteString("it's")).toBe("'it''s'")
+    const sql = momentsSql({ ...plan, keys: ['we"ird'], y: { column: 'y\n-- x' } }, table, 'ansi')
+    expect(sql).toContain('CAST("we""ird" AS VARCHAR) AS ss_k0')
+    expect(sql).toContain('; y = y -- x\n') // the header comment stays on one line
+    expect(sql).toContain('CAST("y\n-- x" AS DOUBLE PRECISION) AS ss_y') // inside quotes: still one identifier
+  })
+})
