@@ -4,6 +4,7 @@
  */
 import { spawn } from 'node:child_process'
 import { existsSync } from 'node:fs'
+import { loadavg } from 'node:os'
 import path from 'node:path'
 import { fileURLToPath } from 'node:url'
 
@@ -28,6 +29,10 @@ export interface ProcessRun {
   readonly wallMs: number
   /** Peak resident set size of the child, MB (1 MB = 1024 kB as GNU time reports kB). */
   readonly peakRssMb: number | null
+  /** User + system CPU seconds of the child (GNU time); less sensitive to a busy machine than wall time. */
+  readonly cpuS: number | null
+  /** 1-minute load average when the child started (a shared machine makes wall times noisy). */
+  readonly load1: number
   readonly exitCode: number | null
   readonly stdout: string
   readonly stderr: string
@@ -45,6 +50,7 @@ export async function runProcess(
   const useTime = existsSync(gnuTime)
   const argv = useTime ? ['-v', command, ...args] : [...args]
   const exe = useTime ? gnuTime : command
+  const load1 = loadavg()[0] ?? 0
   const started = performance.now()
   const child = spawn(exe, argv, {
     cwd: options.cwd ?? projectRoot,
@@ -62,14 +68,22 @@ export async function runProcess(
   const wallMs = performance.now() - started
   let stderr = Buffer.concat(err).toString('utf8')
   let peakRssMb: number | null = null
+  let cpuS: number | null = null
   if (useTime) {
-    const at = stderr.lastIndexOf('\tCommand being timed:')
+    let at = stderr.lastIndexOf('\tCommand being timed:')
+    const exited = stderr.lastIndexOf('Command exited with non-zero status')
+    if (exited >= 0 && exited < at) at = exited
+    const signalled = stderr.lastIndexOf('Command terminated by signal')
+    if (signalled >= 0 && signalled < at) at = signalled
     const report = at >= 0 ? stderr.slice(at) : ''
     if (at >= 0) stderr = stderr.slice(0, at)
     const m = /Maximum resident set size \(kbytes\): (\d+)/.exec(report)
     if (m?.[1] !== undefined) peakRssMb = Number(m[1]) / 1024
+    const user = /User time \(seconds\): ([\d.]+)/.exec(report)?.[1]
+    const sys = /System time \(seconds\): ([\d.]+)/.exec(report)?.[1]
+    if (user !== undefined && sys !== undefined) cpuS = Number(user) + Number(sys)
   }
-  return { wallMs, peakRssMb, exitCode, stdout: Buffer.concat(out).toString('utf8'), stderr }
+  return { wallMs, peakRssMb, cpuS, load1, exitCode, stdout: Buffer.concat(out).toString('utf8'), stderr }
 }
 
 /** Median of a non-empty list. */

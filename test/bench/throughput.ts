@@ -1,0 +1,332 @@
+/**
+ * Issue 2: whole-process throughput of `slopeshift run` on the 10 M-row inputs (hourly windows,
+ * xUnit minute, 2 engine threads, serial off and ar1), the hand-written DuckDB REGR_* baseline on
+ * the same Parquet files, and the Arrow reader's in-process pass. Every figure is a fresh process
+ * spawned under /usr/bin/time (wall time from the parent, peak RSS and CPU from GNU time); reps
+ * are interleaved so a burst of load on the shared machine hits every variant alike.
+ */
+import { mkdir, rm, writeFile } from 'node:fs/promises'
+import path from 'node:path'
+import type { MetricsData, MetricsInput } from './gen-metrics.js'
+import {
+  benchDir,
+  cliPath,
+  fmt,
+  lastLine,
+  maxOrNull,
+  median,
+  type ProcessRun,
+  printTable,
+  projectRoot,
+  runProcess,
+} from './lib.js'
+
+const serialModes = ['off', 'ar1'] as const
+type Serial = (typeof serialModes)[number]
+
+/** Fields of the `--json` run summary the bench reads (src/pipeline/summary.ts). */
+interface SummaryFields {
+  readonly status: string
+  readonly duration_ms: number
+  readonly files: { readonly new: number; readonly read: number; readonly skipped: number }
+  readonly rows: { readonly read: number; readonly skipped: number }
+  readonly series: number
+  readonly windows: { readonly total: number }
+  readonly shifts: number
+}
+
+/** Parses the last stdout line as the run summary; null when it is not one. */
+export function parseSummary(stdout: string): SummaryFields | null {
+  try {
+    const v: unknown = JSON.parse(lastLine(stdout))
+    if (typeof v === 'object' && v !== null && 'rows' in v && 'files' in v) return v as SummaryFields
+  } catch {
+    // not JSON: the caller reports stderr
+  }
+  return null
+}
+
+/** Aggregate of the reps of one variant. */
+export interface VariantResult {
+  readonly label: string
+  readonly input: string
+  readonly reps: number
+  readonly ok: boolean
+  readonly error: string | null
+  readonly rows: number | null
+  readonly wallS: number[]
+  readonly medianWallS: number | null
+  readonly rowsPerS: number | null
+  readonly medianCpuS: number | null
+  readonly peakRssMb: number | null
+  readonly medianLoad1: number
+  readonly inProcessMs?: number | null
+  readonly extra?: Record<string, unknown>
+}
+
+function aggregate(
+  label: string,
+  input: string,
+  runs: readonly { run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }[],
+): VariantResult {
+  const good = runs.filter((r) => r.error === null)
+  const wallS = good.map((r) => r.run.wallMs / 1000)
+  const rows = good[0]?.rows ?? null
+  const medianWallS = wallS.length > 0 ? median(wallS) : null
+  const cpu = good.map((r) => r.run.cpuS).filter((c): c is number => c !== null)
+  return {
+    label,
+    input,
+    reps: runs.length,
+    ok: good.length === runs.length,
+    error: runs.find((r) => r.error !== null)?.error ?? null,
+    rows,
+    wallS,
+    medianWallS,
+    rowsPerS: rows !== null && medianWallS !== null ? rows / medianWallS : null,
+    medianCpuS: cpu.length > 0 ? median(cpu) : null,
+    peakRssMb: maxOrNull(good.map((r) => r.run.peakRssMb)),
+    medianLoad1: median(runs.map((r) => r.run.load1)),
+    ...(good[0]?.extra ? { extra: good[0].extra } : {}),
+  }
+}
+
+async function writeConfig(
+  input: MetricsInput,
+  serial: Serial,
+  threads: number,
+): Promise<{ config: string; root: string }> {
+  const dir = path.join(benchDir, 'work', 'throughput')
+  const root = path.join(dir, `out-${input.name}-${serial}`)
+  const config = path.join(dir, `${input.name}-${serial}.json`)
+  await mkdir(dir, { recursive: true })
+  const body = {
+    job: `bench-${input.name}-${serial}`,
+    source: { paths: [input.path], keys: ['series'], x: { column: 'ts' }, y: { column: 'value' } },
+    window: { size: '1h', xUnit: 'minute' },
+    detect: { serial },
+    output: { root },
+    engine: { threads },
+  }
+  await writeFile(config, `${JSON.stringify(body, null, 2)}\n`)
+  return { config, root }
+}
+
+/** One whole-process `slopeshift run --json --full` on a fresh output root. */
+async function runCli(
+  config: string,
+  root: string,
+): Promise<{ run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }> {
+  await rm(root, { recursive: true, force: true })
+  const run = await runProcess(process.execPath, [cliPath, 'run', '--config', config, '--json', '--full'])
+  const s = parseSummary(run.stdout)
+  if (run.exitCode !== 0 || s === null) {
+    return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
+  }
+  return {
+    run,
+    rows: s.rows.read,
+    error: null,
+    extra: {
+      inProcessDurationMs: s.duration_ms,
+      series: s.series,
+      windows: s.windows.total,
+      shifts: s.shifts,
+      rowsSkipped: s.rows.skipped,
+    },
+  }
+}
+
+/** One whole-process run of the hand-written DuckDB query. */
+async function runBaseline(
+  input: MetricsInput,
+  threads: number,
+): Promise<{ run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }> {
+  const out = path.join(benchDir, 'work', 'throughput', `baseline-${input.name}.parquet`)
+  await rm(out, { force: true })
+  const script = path.join(projectRoot, 'test', 'bench', 'duckdb-regr.mjs')
+  const run = await runProcess(process.execPath, [script, input.path, String(threads), out])
+  if (run.exitCode !== 0)
+    return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
+  const r = JSON.parse(lastLine(run.stdout)) as {
+    rowsInFile: number
+    groups: number
+    pointsUsed: number
+    engineLoadMs: number
+    queryAndWriteMs: number
+  }
+  return { run, rows: r.rowsInFile, error: null, extra: r }
+}
+
+/** One fresh process that reads the Arrow file `reps` times with the built reader. */
+async function runArrowInProcess(
+  input: MetricsInput,
+  serial: Serial,
+  reps: number,
+): Promise<{ run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }> {
+  const script = path.join(projectRoot, 'test', 'bench', 'arrow-read.mjs')
+  const run = await runProcess(process.execPath, [script, input.path, serial, String(reps)])
+  if (run.exitCode !== 0)
+    return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
+  const r = JSON.parse(lastLine(run.stdout)) as {
+    importMs: number
+    passes: { ms: number; rows: number; partials: number; pointsUsed: number }[]
+  }
+  return { run, rows: r.passes[0]?.rows ?? null, error: null, extra: r }
+}
+
+export interface ThroughputOptions {
+  readonly reps: number
+  readonly threads: number
+  readonly formats: readonly ('parquet' | 'arrow')[]
+}
+
+export interface ThroughputResult {
+  readonly cli: VariantResult[]
+  readonly baseline: VariantResult[]
+  readonly ratios: {
+    input: string
+    serial: Serial
+    slopeshiftRowsPerS: number | null
+    handWrittenRowsPerS: number | null
+    ratio: number | null
+  }[]
+  readonly arrowInProcess: {
+    readonly input: string
+    readonly serial: Serial
+    readonly passMs: number[]
+    readonly firstRowsPerS: number | null
+    readonly bestRowsPerS: number | null
+    readonly importMs: number | null
+    readonly peakRssMb: number | null
+    readonly load1: number
+    readonly error: string | null
+  }[]
+  readonly skipped: { name: string; reason: string }[]
+}
+
+/** Runs the issue 2 section for the selected formats and prints its tables. */
+export async function benchThroughput(data: MetricsData, opts: ThroughputOptions): Promise<ThroughputResult> {
+  const inputs = data.inputs.filter((i) => opts.formats.includes(i.format) && i.name !== 'arrow-lz4-4mb')
+  const variants: {
+    key: string
+    input: MetricsInput
+    serial: Serial | null
+    config?: { config: string; root: string }
+  }[] = []
+  for (const input of inputs) {
+    for (const serial of serialModes) {
+      variants.push({
+        key: `slopeshift ${input.name} serial ${serial}`,
+        input,
+        serial,
+        config: await writeConfig(input, serial, opts.threads),
+      })
+    }
+    if (input.format === 'parquet') variants.push({ key: `hand-written DuckDB ${input.name}`, input, serial: null })
+  }
+  const runs = new Map<string, Awaited<ReturnType<typeof runCli>>[]>()
+  for (let rep = 0; rep < opts.reps; rep++) {
+    for (const v of variants) {
+      const r =
+        v.config !== undefined ? await runCli(v.config.config, v.config.root) : await runBaseline(v.input, opts.threads)
+      const list = runs.get(v.key) ?? []
+      list.push(r)
+      runs.set(v.key, list)
+      process.stdout.write('.')
+    }
+  }
+  process.stdout.write('\n')
+  const cli: VariantResult[] = []
+  const baseline: VariantResult[] = []
+  for (const v of variants) {
+    const agg = aggregate(v.key, v.input.name, runs.get(v.key) ?? [])
+    if (v.serial === null) baseline.push(agg)
+    else cli.push(agg)
+  }
+  const ratios: ThroughputResult['ratios'] = []
+  for (const input of inputs.filter((i) => i.format === 'parquet')) {
+    const base = baseline.find((b) => b.input === input.name)
+    for (const serial of serialModes) {
+      const mine = cli.find((c) => c.input === input.name && c.label.endsWith(`serial ${serial}`))
+      const a = mine?.rowsPerS ?? null
+      const b = base?.rowsPerS ?? null
+      ratios.push({
+        input: input.name,
+        serial,
+        slopeshiftRowsPerS: a,
+        handWrittenRowsPerS: b,
+        ratio: a !== null && b !== null ? a / b : null,
+      })
+    }
+  }
+  const rowsOf = (v: VariantResult): string[] => [
+    v.label,
+    v.ok ? fmt((v.rowsPerS ?? Number.NaN) / 1e6, 2) : `FAILED: ${v.error ?? ''}`,
+    v.wallS.map((s) => fmt(s, 2)).join(', '),
+    fmt(v.medianCpuS, 2),
+    fmt(v.peakRssMb, 0),
+    fmt(v.medianLoad1, 1),
+  ]
+  const header = ['whole process', 'M rows/s', 'wall s (each rep)', 'CPU s', 'peak RSS MB', 'load1']
+  printTable(
+    `throughput: 10 M rows, 1,000 series, 1h windows, xUnit minute, engine.threads ${opts.threads}; rows/s = rows read ÷ median wall time of the whole process`,
+    header,
+    [...cli, ...baseline].map(rowsOf),
+  )
+  if (ratios.length > 0) {
+    printTable(
+      'ratio = slopeshift rows/s ÷ hand-written DuckDB REGR_* rows/s (same file, same threads, whole processes)',
+      ['input', 'serial', 'slopeshift M rows/s', 'hand-written M rows/s', 'ratio'],
+      ratios.map((r) => [
+        r.input,
+        r.serial,
+        fmt((r.slopeshiftRowsPerS ?? Number.NaN) / 1e6, 2),
+        fmt((r.handWrittenRowsPerS ?? Number.NaN) / 1e6, 2),
+        fmt(r.ratio, 2),
+      ]),
+    )
+  }
+
+  const arrowInProcess: ThroughputResult['arrowInProcess'] = []
+  if (opts.formats.includes('arrow')) {
+    const targets: { input: MetricsInput; serial: Serial; reps: number }[] = []
+    for (const input of data.inputs.filter((i) => i.format === 'arrow')) {
+      if (input.name === 'arrow-lz4-4mb') targets.push({ input, serial: 'off', reps: 1 })
+      else for (const serial of serialModes) targets.push({ input, serial, reps: Math.max(3, opts.reps) })
+    }
+    for (const t of targets) {
+      const r = await runArrowInProcess(t.input, t.serial, t.reps)
+      const extra = r.extra as { importMs: number; passes: { ms: number; rows: number }[] } | undefined
+      const passMs = extra?.passes.map((p) => p.ms) ?? []
+      const rows = r.rows
+      arrowInProcess.push({
+        input: t.input.name,
+        serial: t.serial,
+        passMs,
+        firstRowsPerS: rows !== null && passMs[0] !== undefined ? rows / (passMs[0] / 1000) : null,
+        bestRowsPerS: rows !== null && passMs.length > 0 ? rows / (Math.min(...passMs) / 1000) : null,
+        importMs: extra?.importMs ?? null,
+        peakRssMb: r.run.peakRssMb,
+        load1: r.run.load1,
+        error: r.error,
+      })
+      process.stdout.write('.')
+    }
+    process.stdout.write('\n')
+    printTable(
+      'arrow in-process: readArrowPartials (dist/dataset/arrow.js) read + accumulate, one fresh process per row, passes in sequence; target ≥ 20 M rows/s',
+      ['input / serial', 'pass ms (each)', 'first M rows/s', 'best M rows/s', 'import ms', 'peak RSS MB', 'load1'],
+      arrowInProcess.map((a) => [
+        `${a.input} / ${a.serial}`,
+        a.error ?? a.passMs.map((m) => fmt(m, 0)).join(', '),
+        fmt((a.firstRowsPerS ?? Number.NaN) / 1e6, 2),
+        fmt((a.bestRowsPerS ?? Number.NaN) / 1e6, 2),
+        fmt(a.importMs, 0),
+        fmt(a.peakRssMb, 0),
+        fmt(a.load1, 1),
+      ]),
+    )
+  }
+  return { cli, baseline, ratios, arrowInProcess, skipped: data.skipped }
+}
