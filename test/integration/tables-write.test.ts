@@ -80,6 +80,21 @@ describe('writeTable', () => {
     expect(Number.isNaN(nanRow?.r2)).toBe(true)
   })
 
+  it('keeps timestamps to the microsecond and rounds finer fractions of a ms', async () => {
+    const dir = freshDir('fits')
+    const limitAt = day0 + 30 * dayMs + 0.123 // 123 µs past a whole ms: stored exactly
+    const projAt = day0 + 2 * hourMs + 0.0002 // ≈0.24 µs as a double: below TIMESTAMPTZ resolution, rounds to the ms
+    await writeTable('fits', [fitRow(['north', 'c1'], day0, { limit_at: limitAt, proj_at: projAt })], {
+      keyColumns,
+      dir,
+      compression: 'zstd',
+      connection,
+    })
+    const [back] = await readTable('fits', dir, keyColumns, { connection })
+    expect(back?.limit_at).toBe(limitAt)
+    expect(back?.proj_at).toBe(day0 + 2 * hourMs)
+  })
+
   it('round-trips shifts rows of every verdict and runs rows with counts up to 2^53 − 1', async () => {
     const shifts = freshDir('shifts')
     const shiftRows = [
