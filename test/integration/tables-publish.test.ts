@@ -4,7 +4,14 @@ import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import { type DuckDBConnection, DuckDBInstance } from '@duckdb/node-api'
 import { afterAll, beforeAll, describe, expect, it } from 'vitest'
-import { publishStaged, readTable, removeStaleTemps, replacePartitions, writeTable } from '../../src/tables/index.js'
+import {
+  publishStaged,
+  readTable,
+  removeStaleTemps,
+  replacePartitions,
+  replaceWindows,
+  writeTable,
+} from '../../src/tables/index.js'
 import type { FitRow } from '../../src/types.js'
 import { day0, dayMs, fitRow, hourMs, keyColumns, runRow, shiftRow } from '../unit/tables/sample-rows.js'
 
@@ -150,6 +157,34 @@ describe('replacePartitions', () => {
       /existing file .*window_date=2026-03-01\/part-0\.parquet has columns \(site VARCHAR, compressor VARCHAR, .*\) but the table now has \(site VARCHAR, window_start TIMESTAMP WITH TIME ZONE, .*\); the key columns or the table layout changed/,
     )
     expect(await snapshot(dir)).toEqual(before)
+  })
+})
+
+describe('replaceWindows', () => {
+  it('drops every existing row of the replaced windows and reports partitions left empty', async () => {
+    const dir = join(freshRoot(), 'fits')
+    const old = existingFits()
+    await writeTable('fits', old, { keyColumns, dir, compression: 'zstd', connection })
+    const before = await snapshot(dir)
+    // Window day0+6h is recomputed and now has only one series; day 2 (both its windows' rows) disappears entirely.
+    const day2 = old.filter((r) => r.window_start >= day0 + dayMs && r.window_start < day0 + 2 * dayMs)
+    const replaced = [day0 + 6 * hourMs, ...new Set(day2.map((r) => r.window_start))]
+    const fresh = [fitRow(['south', 'c2'], day0 + 6 * hourMs, { run_id: 'run-0002' })]
+    const result = await replaceWindows('fits', fresh, {
+      keyColumns,
+      dir,
+      compression: 'zstd',
+      connection,
+      replaceWindowStarts: replaced,
+    })
+    expect(result.written.map((w) => [w.partition, w.rows])).toEqual([['window_date=2026-03-01', 7]])
+    expect(result.removed).toEqual(['window_date=2026-03-02'])
+    const after = await snapshot(dir)
+    const untouched = 'window_date=2026-03-03/part-0.parquet'
+    expect(after.get(untouched)?.equals(before.get(untouched) ?? Buffer.alloc(0))).toBe(true)
+    const day1 = (await readTable('fits', dir, keyColumns, { connection })).filter((r) => r.window_start < day0 + dayMs)
+    expect(day1.filter((r) => r.window_start === day0 + 6 * hourMs)).toEqual(fresh)
+    expect(day1.length).toBe(7)
   })
 })
 
