@@ -33,8 +33,9 @@ export interface ShiftCandidate {
   /** Moments of the new (current) window, x from its own start. */
   readonly current: Moments
   /**
-   * Moments of the baseline windows, oldest first, each on its own origin. All given windows are
-   * used, except thin (n < minPoints) and flat ones, which are left out (statistics.md §3.5).
+   * Moments of the baseline windows, oldest first, each on its own origin. The last
+   * `baselineWindows` of them are used, except thin (n < minPoints) and flat ones, which are left
+   * out (statistics.md §3.5).
    */
   readonly baseline: readonly Moments[]
   /**
@@ -331,15 +332,22 @@ export function decideWindowFamily(
       decideUntested(out, i, Rule.ThinNew, V_THIN)
       continue
     }
+    // At most the `baselineWindows` most recent windows (the list is oldest first).
+    let given = c.baseline
+    let givenOffsets = c.baselineOffsets ?? null
+    if (given.length > detect.baselineWindows) {
+      given = given.slice(-detect.baselineWindows)
+      givenOffsets = givenOffsets === null ? null : givenOffsets.slice(-detect.baselineWindows)
+    }
     let enough = 0
     let usable = 0
-    for (const b of c.baseline) {
+    for (const b of given) {
       if (b.n < detect.minPoints) continue
       enough++
       if (b.xMax !== b.xMin && b.sxx > 0) usable++
     }
     if (enough === 0) {
-      decideUntested(out, i, c.baseline.length === 0 ? Rule.NoBaseline : Rule.ThinBaseline, V_THIN)
+      decideUntested(out, i, given.length === 0 ? Rule.NoBaseline : Rule.ThinBaseline, V_THIN)
       continue
     }
     if (Number.isNaN(slope)) {
@@ -350,11 +358,11 @@ export function decideWindowFamily(
       decideUntested(out, i, Rule.FlatBaseline, V_FLAT)
       continue
     }
-    let windows = c.baseline
-    let offsets = c.baselineOffsets ?? null
-    if (usable !== c.baseline.length) {
-      const keep = c.baseline.map((b) => b.n >= detect.minPoints && b.xMax !== b.xMin && b.sxx > 0)
-      windows = c.baseline.filter((_, j) => keep[j])
+    let windows = given
+    let offsets = givenOffsets
+    if (usable !== given.length) {
+      const keep = given.map((b) => b.n >= detect.minPoints && b.xMax !== b.xMin && b.sxx > 0)
+      windows = given.filter((_, j) => keep[j])
       offsets = offsets === null ? null : offsets.filter((_, j) => keep[j])
     }
     const needsOffsets = detect.test === 'chow' || (detect.baselineKind === 'merged-line' && usable > 1)

@@ -8,7 +8,7 @@
 import { describe, expect, it } from 'vitest'
 import { configSchema, type DetectConfig } from '../../src/config/schema.js'
 import { decideWindowFamily } from '../../src/decide/verdict.js'
-import { emptyMoments, type Moments, mergeMoments, shiftOrigin } from '../../src/kernel/moments.js'
+import { addLagRow, emptyLag, emptyMoments, type Moments, mergeMoments, shiftOrigin } from '../../src/kernel/moments.js'
 import { fUpperP, tQuantile, tTwoSidedP } from '../../src/stats/distributions.js'
 import { benjaminiHochberg } from '../../src/stats/fdr.js'
 import { fitLine, type LineFit, predictAt, slopeInterval } from '../../src/stats/fit.js'
@@ -309,6 +309,15 @@ describe('serialStats (statistics.md §8.3)', () => {
       expectPrinted(eLast, c.last, SE, 'last residual')
     })
   }
+
+  it('gives the §8.3 r1 from a lag block built with addLagRow row by row', () => {
+    // statsmodels 0.15.0 acf(resid, nlags=1) (statistics.md §8.3)
+    const g = emptyLag()
+    for (let i = 0; i < C.x.length; i++) addLagRow(g, C.x[i] as number, C.y[i] as number)
+    expect(g.pairs).toBe(33)
+    const s = serialStats({ ...mC, lag: g }, fC.slope, fC.rss, 'ar1')
+    expectPrinted(s?.r1, '0.441073444218', SE, 'r1')
+  })
 
   it('gives the same r1 from three ordered partials merged as from the row-by-row block', () => {
     // statistics.md §5.2: merging three ordered partials reproduced the streaming r1 to 1e-14. rss and S_e1

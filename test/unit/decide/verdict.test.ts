@@ -230,4 +230,12 @@ describe('decideWindowFamily', () => {
     expect(Math.abs((d.baselineSlope as number) - 0.1)).toBeLessThan(0.02)
     expect(d.verdict).toBe('steady')
   })
+
+  it('uses only the most recent baselineWindows of the windows given', () => {
+    const old = win(40, 0.9, { seed: 24 })
+    const recent = win(40, 0.1, { seed: 25 })
+    const d = decideWindowFamily([{ current: win(40, 0.1, { seed: 26 }), baseline: [old, recent] }], detect()).at(0)
+    expect(d.baselineWindows).toBe(1)
+    expect(Math.abs((d.baselineSlope as number) - 0.1)).toBeLessThan(0.02)
+  })
 })
