@@ -85,7 +85,7 @@ export type VerdictCounts = z.infer<typeof verdictCountsSchema>
 
 /**
  * JSON Schema (draft 2020-12) of the digest, as written to `schemas/digest.schema.json`.
- * Regenerate the file after changing the zod schema: `npx tsx test/helpers/write-digest-schema.ts`.
+ * Regenerate the file after changing the zod schema: `npm run schemas`.
  */
 export function digestJsonSchema(): Record<string, unknown> {
   const generated = z.toJSONSchema(digestSchema, { target: 'draft-2020-12' })

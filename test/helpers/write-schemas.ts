@@ -1,9 +1,19 @@
 /**
- * Regenerates the committed JSON Schemas in schemas/ from their sources in src/
- * (`npm run schemas`). Tests fail when the committed files drift from the code.
+ * Regenerates every committed JSON Schema in schemas/ from its source in src/ (`npm run schemas`):
+ * the config (zod), the three tables (column specs) and the digest (zod). Tests fail when a
+ * committed file drifts from the code.
  */
-import { writeFile } from 'node:fs/promises'
+import { writeFileSync } from 'node:fs'
 import { configJsonSchema } from '../../src/config/json-schema.js'
+import { digestJsonSchema } from '../../src/notify/digest-schema.js'
+import { renderTableSchema, tableNames, tableSchemaFileName } from '../../src/tables/index.js'
 
-const root = new URL('../../schemas/', import.meta.url)
-await writeFile(new URL('config.schema.json', root), `${JSON.stringify(configJsonSchema(), null, 2)}\n`)
+const write = (name: string, text: string): void => {
+  const url = new URL(`../../schemas/${name}`, import.meta.url)
+  writeFileSync(url, text)
+  process.stdout.write(`wrote ${url.pathname}\n`)
+}
+
+write('config.schema.json', `${JSON.stringify(configJsonSchema(), null, 2)}\n`)
+write('digest.schema.json', `${JSON.stringify(digestJsonSchema(), null, 2)}\n`)
+for (const table of tableNames) write(tableSchemaFileName(table), renderTableSchema(table))

@@ -31,7 +31,7 @@ function digestOf(i: DigestInput): Digest {
 const builtAtMs = Date.UTC(2026, 11, 1, 2, 5)
 
 describe('digestJsonSchema', () => {
-  it('matches the committed schemas/digest.schema.json (regenerate: npx tsx test/helpers/write-digest-schema.ts)', () => {
+  it('matches the committed schemas/digest.schema.json (regenerate: npm run schemas)', () => {
     expect(digestSchemaFile).toEqual(digestJsonSchema())
   })
 })

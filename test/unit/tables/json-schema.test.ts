@@ -8,7 +8,7 @@ import { renderTableSchema, tableJsonSchema } from '../../../src/tables/json-sch
 const committed = { fits, shifts, runs }
 
 describe('tableJsonSchema', () => {
-  it('equals the committed schemas/*.schema.json (regenerate with npx tsx test/helpers/write-table-schemas.ts)', () => {
+  it('equals the committed schemas/*.schema.json (regenerate with npm run schemas)', () => {
     for (const table of ['fits', 'shifts', 'runs'] as const) {
       expect(committed[table], `schemas/${table}.schema.json`).toEqual(tableJsonSchema(table))
     }
