@@ -109,6 +109,19 @@ const outputSchema = z
   .object({
     root: z.string().min(1).describe('Folder that receives fits/, shifts/, runs/ and the run state'),
     compression: z.enum(['zstd', 'snappy', 'gzip', 'uncompressed']).default('zstd'),
+    retentionDays: z
+      .number()
+      .int()
+      .min(0)
+      .default(0)
+      .describe(
+        'Keep fits/, shifts/ and runs/ partitions this many days behind the watermark; older windows are dropped and never recomputed (0 = keep everything)',
+      ),
+    lockWaitSeconds: z
+      .number()
+      .min(0)
+      .default(30)
+      .describe('How long a run waits for another run on the same output root before exiting 75'),
   })
   .strict()
 

@@ -14,7 +14,7 @@ interface Args {
   readonly from: string | undefined
   readonly to: string | undefined
   readonly verify: boolean
-  readonly 'lock-wait': number
+  readonly 'lock-wait': number | undefined
   readonly deliver: boolean
   readonly 'fail-on-shift': boolean
 }
@@ -39,8 +39,8 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
         })
         .option('lock-wait', {
           type: 'number',
-          default: 0,
-          describe: 'seconds to wait for another run on the same output root before exiting 75',
+          describe:
+            'seconds to wait for another run on the same output root before exiting 75 (default: output.lockWaitSeconds)',
         })
         .option('deliver', {
           type: 'boolean',
@@ -63,7 +63,7 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
           {
             full: args.full,
             verify: args.verify,
-            lockWaitMs: Math.max(0, args['lock-wait']) * 1000,
+            lockWaitMs: Math.max(0, args['lock-wait'] ?? config.output.lockWaitSeconds) * 1000,
             noDeliver: !args.deliver,
             ...range,
           },
