@@ -216,7 +216,10 @@ export interface TableSnapshot {
 }
 
 /** Reads fits/, shifts/ and runs/ of `root` with readTable; fits and shifts without run_id and computed_at. */
-export async function readOutputs(root: string, keyColumns: readonly string[] = ['site', 'unit']): Promise<TableSnapshot> {
+export async function readOutputs(
+  root: string,
+  keyColumns: readonly string[] = ['site', 'unit'],
+): Promise<TableSnapshot> {
   const fits = await readTable('fits', path.join(root, 'fits'), keyColumns)
   const shifts = await readTable('shifts', path.join(root, 'shifts'), keyColumns)
   const runs = await readTable('runs', path.join(root, 'runs'), [])
@@ -254,7 +257,12 @@ export async function listFiles(dir: string, relativeTo: string = dir): Promise<
       const sha256 = createHash('sha256')
         .update(await readFile(full))
         .digest('hex')
-      out.push({ path: path.relative(relativeTo, full).split(path.sep).join('/'), size: st.size, mtimeMs: st.mtimeMs, sha256 })
+      out.push({
+        path: path.relative(relativeTo, full).split(path.sep).join('/'),
+        size: st.size,
+        mtimeMs: st.mtimeMs,
+        sha256,
+      })
     }
   }
   return out.sort((a, b) => (a.path < b.path ? -1 : a.path > b.path ? 1 : 0))
