@@ -34,7 +34,7 @@ import { ensureDir } from '../store/paths.js'
 import { createStaging, discardStaging, publish, recoverStaging } from '../store/staging.js'
 import { partitionFileName } from '../tables/columns.js'
 import { listTableFiles } from '../tables/read.js'
-import { replaceWindows, writeTable } from '../tables/write.js'
+import { replacePartitions, replaceWindows } from '../tables/write.js'
 import { type PartialMoments, type SourceFile, seriesId } from '../types.js'
 import { fitRows } from './fit-rows.js'
 import { momentsPlanOf, windowSpecOf } from './plan.js'
@@ -246,7 +246,8 @@ async function runLocked(
     notices: { sent, pending },
     output: { root, ...tables },
   })
-  await writeTable('runs', [runRowOf(summaryOf(deps.now(), 0, queued))], {
+  // Merge into the day's runs/ partition: earlier runs' rows of that day stay (writeTable would drop them).
+  await replacePartitions('runs', [runRowOf(summaryOf(deps.now(), 0, queued))], {
     ...write,
     dir: tables.runs,
     stagingDir: path.join(staging, 'runs'),
