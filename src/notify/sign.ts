@@ -1,7 +1,7 @@
 /**
  * Webhook signatures per the open Standard Webhooks specification: HMAC-SHA256 over
  * `${webhook-id}.${webhook-timestamp}.${body}`, sent as `webhook-signature: v1,<base64>`, so a
- * receiver can use any off-the-shelf Standard Webhooks verifier. See src/notify/README-recipe.md.
+ * receiver can use any off-the-shelf Standard Webhooks verifier. See the README recipe (README.md, "Verifying a request").
  */
 import { createHmac, timingSafeEqual } from 'node:crypto'
 import { ConfigError } from '../errors.js'

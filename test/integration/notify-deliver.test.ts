@@ -66,7 +66,7 @@ function effects(random = 0.5) {
 }
 
 /**
- * A receiver written from src/notify/README-recipe.md, independent of src/notify/sign.ts:
+ * A receiver written from the README recipe (README.md, "Verifying a request"), independent of src/notify/sign.ts:
  * key from whsec_ (base64) or raw UTF-8, HMAC-SHA256 over "id.timestamp.body", any v1 entry, 5-minute window.
  */
 function recipeVerify(secretText: string, req: RecordedRequest, nowSeconds: number): boolean {
