@@ -236,7 +236,8 @@ function prepareRows(
     if (typeof row !== 'object' || row === null) throw rowError(table, index, null, 'is not an object')
     const record = row as Record<string, unknown>
     const key = spec.hasKey ? checkKey(table, index, record.key, keyColumns.length) : null
-    const id = JSON.stringify([key === null ? null : seriesId(key), ...identity.map((c) => record[c])])
+    let id = key === null ? '' : seriesId(key)
+    for (const c of identity) id += `\u0000${String(record[c])}`
     if (seen.has(id)) {
       throw rowError(table, index, key, `repeats the identity (${identityColumns(table, keyColumns).join(', ')})`)
     }
