@@ -248,7 +248,7 @@ class Gen {
     return `CASE WHEN ABS(${v}) < CAST(${bound} AS ${this.dbl}) THEN ${v} END`
   }
 
-  /** Layer 2 expression: the instant in whole epoch ms (floor), BIGINT. */
+  /** The instant in whole epoch ms (floor), BIGINT; calendar windows only. */
   private msExpr(): string {
     const t = this.floatT ? 'CAST(FLOOR(ss_t) AS BIGINT)' : 'ss_t'
     switch (this.ticks) {
@@ -262,7 +262,7 @@ class Gen {
   }
 
   /**
-   * Layers after `ss_tms` that end in `ss_win` with `ss_ws`, the window start in epoch ms.
+   * Layers after `ss_src` that end in `ss_win` with `ss_wt`, the window start in ticks of `ss_t`.
    *
    * Calendar windows: truncate the local wall time in the zone, then map it back to an instant. The
    * engines resolve an ambiguous wall time (a midnight that occurs twice when DST ends at 01:00, e.g.
@@ -273,10 +273,12 @@ class Gen {
    */
   private windowLayers(carry: string): string[] {
     const w = this.plan.window
+    const tpm = ticksPerMs[this.ticks]
     if (w.kind === 'fixed') {
-      return [
-        `ss_win AS (\n  SELECT ${carry}, ${this.floorDiv('ss_tm', w.sizeMs)} * ${w.sizeMs} AS ss_ws FROM ss_tms\n)`,
-      ]
+      // Straight from the ticks: one floor division per row, no ms step.
+      const size = Math.round(w.sizeMs * tpm)
+      const t = this.floatT ? 'CAST(FLOOR(ss_t) AS BIGINT)' : 'ss_t'
+      return [`ss_win AS (\n  SELECT ${carry}, ${this.floorDiv(t, size)} * ${size} AS ss_wt FROM ss_src\n)`]
     }
     const unit = w.unit === 'isoweek' ? 'week' : w.unit
     const tz = quoteString(w.timeZone)
@@ -290,23 +292,22 @@ class Gen {
       duck
         ? `epoch_ms(timezone(${tz}, ${ts}))`
         : `CAST(EXTRACT(EPOCH FROM (${ts} AT TIME ZONE ${tz})) * 1000 AS BIGINT)`
+    const toTicks = (ms: string) => (this.ticks === 's' ? this.exactDiv(ms, 1000) : tpm === 1 ? ms : `${ms} * ${tpm}`)
     return [
+      `ss_tms AS (\n  SELECT ${carry}, ${this.msExpr()} AS ss_tm FROM ss_src\n)`,
       `ss_cal1 AS (\n  SELECT ${carry}, date_trunc('${unit}', ${local('ss_tm')}) AS ss_tr FROM ss_tms\n)`,
       `ss_cal2 AS (\n  SELECT ${carry}, ${naiveMs('ss_tr')} AS ss_trm, ${instant('ss_tr')} AS ss_c FROM ss_cal1\n)`,
       `ss_cal3 AS (\n  SELECT ${carry}, ss_trm, ss_c, ss_trm - (${naiveMs(local('ss_c - 1'))} - (ss_c - 1)) AS ss_e FROM ss_cal2\n)`,
       `ss_win AS (\n  SELECT ${carry},\n` +
-        `         CASE WHEN ss_e < ss_c AND ${naiveMs(local('ss_e'))} = ss_trm THEN ss_e ELSE ss_c END AS ss_ws\n` +
+        `         ${toTicks(`(CASE WHEN ss_e < ss_c AND ${naiveMs(local('ss_e'))} = ss_trm THEN ss_e ELSE ss_c END)`)} AS ss_wt\n` +
         '  FROM ss_cal3\n)',
     ]
   }
 
-  /** x in x units from `ss_t` and `ss_ws` (window start, ms). */
+  /** x in x units from `ss_t` and `ss_wt` (window start, same ticks). */
   private xExpr(): string {
     const tpm = ticksPerMs[this.ticks]
-    const startTicks = this.ticks === 's' ? this.exactDiv('ss_ws', 1000) : tpm === 1 ? 'ss_ws' : `ss_ws * ${tpm}`
-    const diff = this.floatT
-      ? `(ss_t - CAST(${startTicks} AS ${this.dbl}))`
-      : `CAST(ss_t - ${startTicks} AS ${this.dbl})`
+    const diff = this.floatT ? `(ss_t - CAST(ss_wt AS ${this.dbl}))` : `CAST(ss_t - ss_wt AS ${this.dbl})`
     const perUnit = msPerXUnit[this.plan.xUnit] * tpm
     if (perUnit === 1) return diff
     if (perUnit > 1) return `${diff} / ${this.num(perUnit)}`
@@ -321,7 +322,7 @@ class Gen {
 
   build(): MomentsQuery {
     const kCols = this.keys.map((_, i) => `ss_k${i}`)
-    const groupCols = ['ss_file', ...kCols, 'ss_ws']
+    const groupCols = ['ss_file', ...kCols, 'ss_wt']
     const carry = ['ss_file', ...kCols, 'ss_t', 'ss_y']
     if (this.weighted) carry.push('ss_w')
     if (this.lag && this.hasRn()) carry.push('ss_rn')
@@ -329,7 +330,7 @@ class Gen {
     const ptsCols = [
       'ss_file',
       ...kCols,
-      'ss_ws',
+      'ss_wt',
       `CASE WHEN ${valid} THEN ${this.xExpr()} END AS ss_x`,
       `CASE WHEN ${valid} THEN ss_y END AS ss_yv`,
     ]
@@ -340,16 +341,20 @@ class Gen {
     }
     const ctes = [
       `ss_src AS (\n  ${this.srcLayer()}\n)`,
-      `ss_tms AS (\n  SELECT ${carry.join(', ')}, ${this.msExpr()} AS ss_tm FROM ss_src\n)`,
       ...this.windowLayers(carry.join(', ')),
       `ss_pts AS (\n  SELECT ${ptsCols.join(',\n         ')}\n  FROM ss_win\n)`,
     ]
-    const outKeys = this.keys.map((k, i) => `ss_k${i} AS ${quoteIdent(k)}`)
-    const lead = ['ss_file AS "file"', ...outKeys, 'ss_ws AS window_start_ms']
+    const tpm = ticksPerMs[this.ticks]
+    const toMs = (wt: string) => (this.ticks === 's' ? `${wt} * 1000` : tpm === 1 ? wt : this.exactDiv(wt, tpm))
+    const lead = (p: string) => [
+      `${p}ss_file AS "file"`,
+      ...this.keys.map((k, i) => `${p}ss_k${i} AS ${quoteIdent(k)}`),
+      `${toMs(`${p}ss_wt`)} AS window_start_ms`,
+    ]
     let body: string
-    if (this.weighted) body = this.weightedBody(ctes, groupCols, lead)
-    else if (this.lag) body = this.lagBody(ctes, groupCols, lead)
-    else body = this.plainBody(ctes, groupCols, lead)
+    if (this.weighted) body = this.weightedBody(ctes, groupCols, lead('g.'))
+    else if (this.lag) body = this.lagBody(ctes, groupCols, lead(''))
+    else body = this.plainBody(ctes, groupCols, lead(''))
     const columns = ['file', ...this.keys, 'window_start_ms', ...momentColumns, ...(this.lag ? lagColumns : [])]
     return { sql: body, keys: this.keys, columns }
   }
@@ -444,10 +449,9 @@ class Gen {
         `  FROM ss_pts p JOIN ss_g g ON ${on}\n  WHERE p.ss_x IS NOT NULL\n` +
         `  GROUP BY ${groupCols.map((c) => `g.${c}`).join(', ')}\n)`,
     )
-    const gLead = lead.map((l) => `g.${l}`)
     const on2 = groupCols.map((c) => `c.${c} IS NOT DISTINCT FROM g.${c}`).join(' AND ')
     const sel = [
-      ...gLead,
+      ...lead,
       'g.ss_n AS n',
       'g.ss_ws_w AS w_sum',
       'g.ss_xm + c.ss_dx / g.ss_ws_w AS x_mean',

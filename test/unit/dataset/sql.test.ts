@@ -39,7 +39,7 @@ describe('momentsSql', () => {
       const sql = momentsSql(plan, table, d)
       for (const agg of regr) expect(sql).toContain(agg)
       expect(sql).toContain('MIN(ss_x) AS x_min')
-      expect(sql).toMatch(/GROUP BY ss_file, ss_k0, ss_k1, ss_ws\nORDER BY 1, 2, 3, 4$/)
+      expect(sql).toMatch(/GROUP BY ss_file, ss_k0, ss_k1, ss_wt\nORDER BY 1, 2, 3, 4$/)
       expect(sql).toContain('FROM "lake"."metrics"')
       expect(sql.startsWith(`-- slopeshift partial moments per (file, series, window); dialect ${d}\n`)).toBe(true)
     },
@@ -70,7 +70,8 @@ describe('momentsSql', () => {
   it('turns TIMESTAMP_NS into integer nanoseconds and subtracts the window start before the DOUBLE step', () => {
     const sql = momentsSql(plan, parquet, 'duckdb')
     expect(sql).toContain('epoch_ns("ts")')
-    expect(sql).toContain('CAST(ss_t - ss_ws * 1000000 AS DOUBLE) / CAST(60000000000 AS DOUBLE)')
+    expect(sql).toContain('(ss_wt // 1000000) AS window_start_ms')
+    expect(sql).toContain('CAST(ss_t - ss_wt AS DOUBLE) / CAST(60000000000 AS DOUBLE)')
   })
 
   it('reads Parquet with file names, without DuckDB Hive parsing when the caller supplies the Hive keys', () => {
@@ -91,16 +92,18 @@ describe('momentsSql', () => {
       { ...table, x: { kind: 'epoch', integer: false } },
       'duckdb',
     )
-    expect(sql).toContain('CAST(FLOOR(ss_t) AS BIGINT) * 1000 AS ss_tm')
-    expect(sql).toContain('(ss_t - CAST((ss_ws // 1000) AS DOUBLE)) / CAST(60 AS DOUBLE)')
+    expect(sql).toContain(
+      '(CAST(FLOOR(ss_t) AS BIGINT) // 3600 - CASE WHEN CAST(FLOOR(ss_t) AS BIGINT) % 3600 < 0 THEN 1 ELSE 0 END) * 3600 AS ss_wt',
+    )
+    expect(sql).toContain('(ss_t - CAST(ss_wt AS DOUBLE)) / CAST(60 AS DOUBLE)')
   })
 
-  it('uses integer floor division for fixed windows, correct before 1970', () => {
+  it('uses integer floor division on the ticks for fixed windows, correct before 1970', () => {
     expect(momentsSql(plan, table, 'duckdb')).toContain(
-      '(ss_tm // 3600000 - CASE WHEN ss_tm % 3600000 < 0 THEN 1 ELSE 0 END) * 3600000 AS ss_ws',
+      '(ss_t // 3600000000 - CASE WHEN ss_t % 3600000000 < 0 THEN 1 ELSE 0 END) * 3600000000 AS ss_wt',
     )
     expect(momentsSql(plan, table, 'postgres')).toContain(
-      '((ss_tm - MOD(MOD(ss_tm, 3600000) + 3600000, 3600000)) / 3600000) * 3600000 AS ss_ws',
+      '((ss_t - MOD(MOD(ss_t, 3600000000) + 3600000000, 3600000000)) / 3600000000) * 3600000000 AS ss_wt',
     )
   })
 
@@ -118,7 +121,7 @@ describe('momentsSql', () => {
     const sql = momentsSql({ ...plan, trackLag: true }, parquet, 'duckdb')
     expect(sql).toContain('file_row_number = true')
     expect(sql).toContain('LAG(ss_x) OVER ss_w AS ss_px')
-    expect(sql).toContain('WINDOW ss_w AS (PARTITION BY ss_file, ss_k0, ss_ws, (ss_x IS NULL) ORDER BY ss_rn)')
+    expect(sql).toContain('WINDOW ss_w AS (PARTITION BY ss_file, ss_k0, ss_wt, (ss_x IS NULL) ORDER BY ss_rn)')
     for (const f of [
       'REGR_COUNT(ss_yv, ss_py) AS pairs',
       'REGR_AVGY(ss_x, ss_px) AS cur_x_mean',
