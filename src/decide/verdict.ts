@@ -9,6 +9,7 @@
  */
 import type { DetectConfig } from '../config/schema.js'
 import type { Moments } from '../kernel/moments.js'
+import { tTwoSidedP } from '../stats/distributions.js'
 import { qValues } from '../stats/fdr.js'
 import { residualDf, type WeightKind } from '../stats/fit.js'
 import { effectiveN, fallbackRho, lagRhoStar } from '../stats/serial.js'
@@ -16,6 +17,7 @@ import {
   type Baseline,
   chowTest,
   directedP,
+  EXACT_DELTA_RATIO,
   fallbackNEff,
   fillCommonSlope,
   mergedLineBaseline,
@@ -24,7 +26,6 @@ import {
   pooledTest,
   residualSum,
   type ShiftTestResult,
-  welchTest,
 } from '../stats/shift-test.js'
 import type { SerialUse, Verdict } from '../types.js'
 
@@ -467,15 +468,28 @@ export function decideWindowFamily(
       state[i] = 0
       continue
     }
-    const r = welchTest(
-      {
-        slope: out.baseSlope[i] as number,
-        variance: (baseRss[i] as number) / (dfOld * (baseSxx[i] as number)),
-        df: dfOld,
-      },
-      { slope: out.slope[i] as number, variance: (curRss[i] as number) / (dfNew * (curSxx[i] as number)), df: dfNew },
-    )
-    recordTest(out, i, r, detect)
+    // welchTest (statistics.md §3.2, exact fits §3.6) written out inline: this loop runs once per
+    // series and must not allocate; the worked-example reference test checks both paths agree.
+    const slopeOld = out.baseSlope[i] as number
+    const slopeNew = out.slope[i] as number
+    const vOld = (baseRss[i] as number) / (dfOld * (baseSxx[i] as number))
+    const vNew = (curRss[i] as number) / (dfNew * (curSxx[i] as number))
+    const v = vOld + vNew
+    const delta = slopeNew - slopeOld
+    let p: number
+    if (v > 0) {
+      const se = Math.sqrt(v)
+      const t = delta / se
+      const nu = (v * v) / ((vOld * vOld) / dfOld + (vNew * vNew) / dfNew)
+      out.deltaSe[i] = se
+      out.statistic[i] = t
+      out.df[i] = nu
+      p = tTwoSidedP(t, nu)
+    } else {
+      out.deltaSe[i] = 0
+      p = Math.abs(delta) > EXACT_DELTA_RATIO * Math.max(Math.abs(slopeOld), Math.abs(slopeNew)) ? 0 : 1
+    }
+    out.p[i] = directedP(p, delta, detect.direction)
     state[i] = 1
   }
 
