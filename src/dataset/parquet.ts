@@ -78,7 +78,7 @@ export async function readParquetPartials(
       const x = checkColumns(group.files, plan, schemas)
       const q = momentsQuery(
         plan,
-        { kind: 'parquet', files: group.files.map((f) => f.path), x, fileKeys: group.fileKeys },
+        { kind: 'parquet', files: group.files.map((f) => f.path), x, fileKeys: group.fileKeys, fileIndex: true },
         'duckdb',
       )
       const result = await runScan(db, wrapQuery(q.sql, q.columns.length, q.keys.length), group.files, signal)
@@ -332,7 +332,6 @@ function collect(
   stats: Map<string, ReadStats>,
   runs: SeriesRun[],
 ): void {
-  const byPath = new Map(files.map((f) => [f.path, f]))
   const k = sqlKeys.length
   const keyPos = plan.keys.map((name) => sqlKeys.indexOf(name))
   const lag = plan.trackLag && plan.weight === null
@@ -354,9 +353,10 @@ function collect(
       const sid = sidV.getItem(r) as number
       if (sid !== lastSid) {
         lastSid = sid
-        const path = String(col(1).getItem(r))
-        const src = byPath.get(path)
-        if (src === undefined) throw new Error(`DuckDB returned an unknown file name ${path}`)
+        const index = Number(col(1).getItem(r))
+        const src = files[index]
+        if (src === undefined) throw new Error(`DuckDB returned an unknown file index ${index}`)
+        const path = src.path
         const key: SeriesKey = plan.keys.map((name, i) => {
           const p = keyPos[i] ?? -1
           if (p < 0) return src.hive[name] ?? null

@@ -47,6 +47,11 @@ export type SqlSource =
        * (`hive_partitioning = true`, values kept as text).
        */
       readonly fileKeys?: readonly string[]
+      /**
+       * Group by DuckDB's `file_index` (position in `files`, BIGINT) instead of the file name: an
+       * integer is cheaper to hash per row than a path. The `file` output column then holds the index.
+       */
+      readonly fileIndex?: boolean
     }
   | {
       /** A table or view whose column names are those of the plan. Dotted names are quoted per part. */
@@ -217,7 +222,7 @@ class Gen {
     const p = this.plan
     const s = this.source
     const cols: string[] = []
-    if (s.kind === 'parquet') cols.push('filename AS ss_file')
+    if (s.kind === 'parquet') cols.push(s.fileIndex === true ? 'file_index AS ss_file' : 'filename AS ss_file')
     else if (s.fileColumn !== undefined) cols.push(`CAST(${quoteIdent(s.fileColumn)} AS VARCHAR) AS ss_file`)
     else cols.push(`CAST(${quoteString(s.table)} AS VARCHAR) AS ss_file`)
     this.keys.forEach((k, i) => {
