@@ -152,6 +152,9 @@ async function runLocked(
   if (options.fromMs !== undefined && options.toMs !== undefined) {
     for (const s of windowStartsBetween(window, options.fromMs, options.toMs)) starts.add(s)
   }
+  // Retention: windows starting before the cutoff are frozen (never recomputed) and their partitions dropped.
+  const cutoffMs = config.output.retentionDays > 0 ? watermarkMs - config.output.retentionDays * 86_400_000 : null
+  if (cutoffMs !== null) for (const s of [...starts]) if (s < cutoffMs) starts.delete(s)
   const readStarts = new Set(starts)
   for (const s of starts) {
     let b = s
@@ -198,6 +201,15 @@ async function runLocked(
     for (const table of ['fits', 'shifts'] as const) {
       for (const f of await listTableFiles(table, tables[table])) {
         remove.push(path.relative(root, f).split(path.sep).join('/'))
+      }
+    }
+  }
+  if (cutoffMs !== null) {
+    const cutoffDate = new Date(cutoffMs).toISOString().slice(0, 10)
+    for (const table of ['fits', 'shifts', 'runs'] as const) {
+      for (const f of await listTableFiles(table, tables[table])) {
+        const date = /=(\d{4}-\d{2}-\d{2})$/.exec(path.basename(path.dirname(f)))?.[1]
+        if (date !== undefined && date < cutoffDate) remove.push(path.relative(root, f).split(path.sep).join('/'))
       }
     }
   }
