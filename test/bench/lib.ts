@@ -34,6 +34,8 @@ export interface ProcessRun {
   /** 1-minute load average when the child started (a shared machine makes wall times noisy). */
   readonly load1: number
   readonly exitCode: number | null
+  /** True when the run was stopped by `timeoutMs` (SIGTERM to its process group). */
+  readonly timedOut: boolean
   readonly stdout: string
   readonly stderr: string
 }
@@ -45,7 +47,7 @@ export interface ProcessRun {
 export async function runProcess(
   command: string,
   args: readonly string[],
-  options: { readonly cwd?: string; readonly env?: NodeJS.ProcessEnv } = {},
+  options: { readonly cwd?: string; readonly env?: NodeJS.ProcessEnv; readonly timeoutMs?: number } = {},
 ): Promise<ProcessRun> {
   const useTime = existsSync(gnuTime)
   const argv = useTime ? ['-v', command, ...args] : [...args]
@@ -56,7 +58,17 @@ export async function runProcess(
     cwd: options.cwd ?? projectRoot,
     env: options.env ?? process.env,
     stdio: ['ignore', 'pipe', 'pipe'],
+    // own process group, so a timeout can stop GNU time and the measured child together
+    detached: options.timeoutMs !== undefined,
   })
+  let timedOut = false
+  const timer =
+    options.timeoutMs === undefined
+      ? null
+      : setTimeout(() => {
+          timedOut = true
+          if (child.pid !== undefined) process.kill(-child.pid, 'SIGTERM')
+        }, options.timeoutMs)
   const out: Buffer[] = []
   const err: Buffer[] = []
   child.stdout.on('data', (b: Buffer) => out.push(b))
@@ -65,6 +77,7 @@ export async function runProcess(
     child.on('error', reject)
     child.on('close', (code) => resolve(code))
   })
+  if (timer !== null) clearTimeout(timer)
   const wallMs = performance.now() - started
   let stderr = Buffer.concat(err).toString('utf8')
   let peakRssMb: number | null = null
@@ -83,7 +96,7 @@ export async function runProcess(
     const sys = /System time \(seconds\): ([\d.]+)/.exec(report)?.[1]
     if (user !== undefined && sys !== undefined) cpuS = Number(user) + Number(sys)
   }
-  return { wallMs, peakRssMb, cpuS, load1, exitCode, stdout: Buffer.concat(out).toString('utf8'), stderr }
+  return { wallMs, peakRssMb, cpuS, load1, exitCode, timedOut, stdout: Buffer.concat(out).toString('utf8'), stderr }
 }
 
 /** Median of a non-empty list. */
