@@ -83,9 +83,6 @@ export interface WrittenPartition {
 /** Rows handed to DuckDB per data chunk: DuckDB's vector size. */
 const chunkRows = 2048
 
-/** Hidden column of the load table holding each row's partition folder name. */
-const partColumn = '__slopeshift_partition'
-
 /**
  * Writes `rows` as the whole content of every partition they fall in: each partition folder gets one
  * `part-0.parquet`, replacing any file there; partitions the rows do not touch are left as they are.
@@ -206,8 +203,6 @@ async function writePartitions(
 interface LoadedRows {
   readonly rows: readonly Record<string, unknown>[]
   readonly keys: readonly (SeriesKey | null)[]
-  /** Partition folder name of each row. */
-  readonly partitions: readonly string[]
   readonly partitionRows: Map<string, number>
 }
 
@@ -225,7 +220,6 @@ function prepareRows(
   const spec = tableSpecs[table]
   const records: Record<string, unknown>[] = []
   const keys: (SeriesKey | null)[] = []
-  const partitions: string[] = []
   const partitionRows = new Map<string, number>()
   const seen = new Set<string>()
   const identity = spec.identity
@@ -255,10 +249,9 @@ function prepareRows(
     }
     records.push(record)
     keys.push(key)
-    partitions.push(partition)
     partitionRows.set(partition, (partitionRows.get(partition) ?? 0) + 1)
   }
-  return { rows: records, keys, partitions, partitionRows }
+  return { rows: records, keys, partitionRows }
 }
 
 function checkKey(table: TableName, index: number, key: unknown, length: number): SeriesKey {
@@ -374,11 +367,11 @@ async function loadRows(
   columns: readonly ColumnSpec[],
   loaded: LoadedRows,
 ): Promise<void> {
-  const types = [...columns.map((c) => loadTypes[c.type]), VARCHAR]
-  const defs = [...columns.map((c, i) => `${quoteIdent(c.name)} ${types[i]}`), `${quoteIdent(partColumn)} VARCHAR`]
+  const types = columns.map((c) => loadTypes[c.type])
+  const defs = columns.map((c, i) => `${quoteIdent(c.name)} ${types[i]}`)
   await connection.run(`CREATE TEMP TABLE ${quoteIdent(loadTable)} (${defs.join(', ')})`)
   const converters = columns.map(converterFor)
-  const { rows, keys, partitions } = loaded
+  const { rows, keys } = loaded
   const appender = await connection.createAppender(loadTable)
   try {
     for (let offset = 0; offset < rows.length; offset += chunkRows) {
@@ -398,9 +391,6 @@ async function loadRows(
         }
         vector.flush()
       }
-      const partVector = chunk.getColumnVector(columns.length)
-      for (let i = 0; i < count; i++) partVector.setItem(i, partitions[offset + i] ?? null)
-      partVector.flush()
       appender.appendDataChunk(chunk)
     }
     appender.flushSync()
@@ -426,11 +416,14 @@ interface CopyPlan {
 /** Writes one partition file with COPY; returns the number of rows written. */
 async function copyPartition(connection: DuckDBConnection, plan: CopyPlan): Promise<number> {
   const list = plan.columns.map((c) => quoteIdent(c.name)).join(', ')
-  const part = quoteLiteral(plan.partition)
+  // The partition is the UTC day [dayStart, dayStart + 1 day) of the partition source, loaded as epoch ms DOUBLE:
+  // the same floor-by-day rule as partitionName, with no per-row partition column to load.
+  const dayStart = Date.parse(`${plan.partition.slice(plan.partition.indexOf('=') + 1)}T00:00:00Z`)
+  const sourceColumn = quoteIdent(tableSpecs[plan.table].partitionSource)
   // `n`: the new rows of this partition, in their published types.
   let source =
     `WITH n AS (SELECT ${plan.columns.map(publishedExpr).join(', ')} FROM ${quoteIdent(plan.loadTable)} ` +
-    `WHERE ${quoteIdent(partColumn)} = ${part}) SELECT ${list} FROM n`
+    `WHERE ${sourceColumn} >= ${dayStart} AND ${sourceColumn} < ${dayStart + dayMs}) SELECT ${list} FROM n`
   if (plan.existing !== null) {
     const match = identityColumns(plan.table, plan.keyColumns)
       .map((c) => `n.${quoteIdent(c)} IS NOT DISTINCT FROM e.${quoteIdent(c)}`)
