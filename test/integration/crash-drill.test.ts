@@ -1,0 +1,209 @@
+/**
+ * Issue #4, check 3: the crash drill. An incremental run (a new day, a late file for an old day, a day rewritten in
+ * place) is SIGKILLed at ≥ 30 seeded random moments spread uniformly over the measured length of a clean run, so
+ * kills land in every stage (start-up, lock, plan, read, partials, staging, publish, ledger commit, exit). After
+ * each kill a rerun (not killed) must converge to the tables of a clean reference run: nothing lost, no duplicate
+ * identity, no temp file visible in fits/, shifts/ or runs/, the staging folder empty, the same ledger. A few
+ * extra kills aim at the publish window itself (manifest written, ledger not yet committed), where the next run
+ * must roll the half-published tables back.
+ *
+ * Work is spread over a few workers, each with its own output root (the lake is shared and never written during
+ * the drill), to keep the wall time low: about 2 min on an idle 2-core machine, 4–5 min on one busy with other
+ * jobs (every run then spends most of its time starting Node and loading modules), hence the 6 min timeout.
+ */
+import { cp, mkdtemp, readdir, rm } from 'node:fs/promises'
+import { tmpdir } from 'node:os'
+import path from 'node:path'
+import { afterAll, beforeAll, describe, expect, it } from 'vitest'
+import { uniformRng } from '../../src/demo/random.js'
+import { readLedger } from '../../src/store/ledger.js'
+import { type CliResult, describeResult, hasBuiltCli, noCliReason, runCli, spawnCli } from '../helpers/cli.js'
+import {
+  duplicateIdentities,
+  readOutputs,
+  rewriteDay,
+  strayTemps,
+  type TableSnapshot,
+  writeDay,
+  writeJobConfig,
+  writeLateFile,
+} from '../helpers/lake.js'
+
+const workers = Number(process.env.SLOPESHIFT_CRASH_WORKERS ?? 5)
+const randomKills = Number(process.env.SLOPESHIFT_CRASH_KILLS ?? 30)
+/** Extra kills at the moment a publish manifest appears. */
+const publishKills = 2
+const seed = 20261202
+/** Files the drilled run reads: day 4 (new), the late file of day 1 (new), day 2 (rewritten). */
+const drilledFiles = 3
+const trace = process.env.SLOPESHIFT_CRASH_TRACE === '1'
+
+interface Reference {
+  readonly tables: TableSnapshot
+  readonly ledger: { path: string; fingerprint: string }[]
+  readonly durationMs: number
+}
+
+interface Drill {
+  readonly kind: 'random' | 'publish'
+  readonly delayMs: number
+  readonly killed: boolean
+  /** Last log message before the kill (the stage reached), or `(none)`. */
+  readonly stage: string
+  readonly rerun: CliResult
+}
+
+let base: string
+/** The shared lake (never written during the drill), the committed state before the drilled run, the reference. */
+let lake: string
+let before: string
+let reference: Reference
+const drills: Drill[] = []
+
+beforeAll(async () => {
+  base = await mkdtemp(path.join(tmpdir(), 'slopeshift-crash-'))
+  lake = path.join(base, 'lake')
+  before = path.join(base, 'before')
+})
+afterAll(async () => {
+  await rm(base, { recursive: true, force: true })
+})
+
+/** A job config writing to `root`; every worker reads the same lake (input paths in the ledger stay equal). */
+async function configFor(root: string): Promise<string> {
+  return writeJobConfig(`${root}.json`, { paths: [lake], root })
+}
+
+async function ledgerFacts(root: string): Promise<{ path: string; fingerprint: string }[]> {
+  return (await readLedger(root)).files.map((f) => ({ path: f.path, fingerprint: f.fingerprint }))
+}
+
+/** Days 0–3 committed (saved as `before`), then day 4, a late file for day 1 and day 2 rewritten; a clean run. */
+async function setUp(): Promise<Reference> {
+  const root = path.join(base, 'reference')
+  const config = await configFor(root)
+  for (let day = 0; day < 4; day++) await writeDay(lake, day)
+  const first = await runCli(['run', '--config', config, '--json'])
+  expect(first.code, describeResult(first)).toBe(0)
+  await cp(root, before, { recursive: true })
+  await writeDay(lake, 4)
+  await writeLateFile(lake, 1)
+  await rewriteDay(lake, 2)
+  const clean = await runCli(['run', '--config', config, '--json'])
+  expect(clean.code, describeResult(clean)).toBe(0)
+  expect(clean.summary?.files.read).toBe(drilledFiles)
+  return { tables: await readOutputs(root), ledger: await ledgerFacts(root), durationMs: clean.durationMs }
+}
+
+/**
+ * Restores `root` to the committed state before the drilled run, SIGKILLs a run after `delayMs` (random) or when
+ * a publish manifest appears (publish), then reruns it to completion and checks it against the reference.
+ */
+async function drill(root: string, config: string, kind: Drill['kind'], delayMs: number): Promise<Drill> {
+  await rm(root, { recursive: true, force: true })
+  await cp(before, root, { recursive: true })
+  const proc = spawnCli(['run', '--config', config, '--json'])
+  let timer: NodeJS.Timeout | undefined
+  let polling = true
+  if (kind === 'random') timer = setTimeout(() => proc.child.kill('SIGKILL'), delayMs)
+  else {
+    const staging = path.join(root, '_state', 'staging')
+    void (async () => {
+      while (polling) {
+        for (const r of await readdir(staging).catch(() => [] as string[])) {
+          const inner = await readdir(path.join(staging, r, '.publish')).catch(() => [] as string[])
+          if (inner.includes('manifest.json')) {
+            proc.child.kill('SIGKILL')
+            return
+          }
+        }
+        await new Promise((resolve) => setTimeout(resolve, 1))
+      }
+    })()
+  }
+  const killedRun = await proc.result
+  polling = false
+  clearTimeout(timer)
+  const killed = killedRun.signal === 'SIGKILL'
+  if (!killed) expect(killedRun.code, describeResult(killedRun)).toBe(0)
+  const stage = typeof killedRun.lastLog?.msg === 'string' ? killedRun.lastLog.msg : '(none)'
+  const killedRunId = killedRun.logs.find((l) => typeof l.runId === 'string')?.runId
+  const killedCommitted = killedRunId !== undefined && (await readLedger(root)).committedRunId === killedRunId
+
+  const rerun = await runCli(['run', '--config', config, '--json'])
+  const label = `${kind} kill at ${delayMs} ms (${killed ? `killed after "${stage}"` : 'not killed'})`
+  expect(rerun.code, `${label}: ${describeResult(rerun)}`).toBe(0)
+  // The rerun redoes exactly the uncommitted work: everything, or nothing when the killed run had committed.
+  expect(rerun.summary?.files.read, label).toBe(killedCommitted ? 0 : drilledFiles)
+  const tables = await readOutputs(root)
+  expect(await strayTemps(root), label).toEqual([])
+  expect(await readdir(path.join(root, '_state', 'staging')).catch(() => []), label).toEqual([])
+  expect(tables.fits, label).toEqual(reference.tables.fits)
+  expect(tables.shifts, label).toEqual(reference.tables.shifts)
+  expect(duplicateIdentities(tables.fits, ['key', 'window_start']), label).toEqual([])
+  expect(duplicateIdentities(tables.shifts, ['key', 'window_start']), label).toEqual([])
+  expect(duplicateIdentities(tables.runs as never, ['run_id']), label).toEqual([])
+  expect(tables.runs.at(-1)?.run_id, label).toBe(rerun.summary?.run_id)
+  expect(await ledgerFacts(root), label).toEqual(reference.ledger)
+  if (trace)
+    console.info(
+      `${label}: killed run ${Math.round(killedRun.durationMs)} ms, rerun ${Math.round(rerun.durationMs)} ms`,
+    )
+  return { kind, delayMs, killed, stage, rerun }
+}
+
+describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' : noCliReason})`, () => {
+  it('converges to the clean run after SIGKILL at 30+ random moments across all stages', async () => {
+    const started = performance.now()
+    reference = await setUp()
+    if (trace) console.info(`set up in ${Math.round(performance.now() - started)} ms`)
+    // Delays are seeded fractions of a clean run's length. That length is re-estimated from the full reruns seen
+    // so far (median), so the draws stay spread over the run even when parallel workers slow every run down.
+    const rng = uniformRng(seed)
+    const fractions = Array.from({ length: randomKills }, () => rng())
+    const fullRuns: number[] = []
+    const cleanMs = (): number => {
+      if (fullRuns.length === 0) return reference.durationMs
+      const sorted = [...fullRuns].sort((a, b) => a - b)
+      return sorted[Math.floor(sorted.length / 2)] ?? reference.durationMs
+    }
+    let next = 0
+    await Promise.all(
+      Array.from({ length: workers }, async (_, w) => {
+        const root = path.join(base, `w${w}`)
+        const config = await configFor(root)
+        for (let i = next++; i < fractions.length + publishKills; i = next++) {
+          const d =
+            i < fractions.length
+              ? await drill(root, config, 'random', Math.floor((fractions[i] ?? 0) * cleanMs()))
+              : await drill(root, config, 'publish', -1)
+          drills.push(d)
+          if (d.rerun.summary?.files.read === drilledFiles) fullRuns.push(d.rerun.durationMs)
+        }
+      }),
+    )
+    const random = drills.filter((d) => d.kind === 'random')
+    const killed = random.filter((d) => d.killed)
+    const stages = new Map<string, number>()
+    for (const d of killed) stages.set(d.stage, (stages.get(d.stage) ?? 0) + 1)
+    const publish = drills.filter((d) => d.kind === 'publish')
+    const summary = {
+      referenceRunMs: Math.round(reference.durationMs),
+      medianRerunMs: Math.round(cleanMs()),
+      randomDraws: random.length,
+      killed: killed.length,
+      lastLogBeforeKill: Object.fromEntries(stages),
+      publishKills: publish.filter((d) => d.killed).length,
+      rolledBackByRerun: drills.filter((d) => d.rerun.stderr.includes('uncommitted publish rolled back')).length,
+      wallMs: Math.round(performance.now() - started),
+    }
+    console.info(`crash drill: ${JSON.stringify(summary)}`)
+    // ≥ 30 kills; most land mid-run (the draws are uniform over a clean run's length).
+    expect(random.length).toBeGreaterThanOrEqual(30)
+    expect(killed.length).toBeGreaterThanOrEqual(Math.floor(0.8 * random.length))
+    expect(stages.size).toBeGreaterThanOrEqual(3)
+    // The aimed kills hit the publish window, and the rerun rolled their half-published tables back.
+    expect(publish.every((d) => d.killed)).toBe(true)
+    expect(publish.every((d) => d.rerun.stderr.includes('uncommitted publish rolled back'))).toBe(true)
+  }, 360_000)
+})
