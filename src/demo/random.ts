@@ -12,9 +12,8 @@ export function uniformRng(seed: number): () => number {
   }
 }
 
-/** A deterministic standard-normal generator built on `uniformRng` (Box–Muller). */
-export function normalRng(seed: number): () => number {
-  const u = uniformRng(seed)
+/** Standard normal draws by Box–Muller from any uniform [0, 1) generator. */
+export function normalsFrom(uniform: () => number): () => number {
   let spare: number | null = null
   return () => {
     if (spare !== null) {
@@ -23,10 +22,15 @@ export function normalRng(seed: number): () => number {
       return s
     }
     let a = 0
-    while (a === 0) a = u()
-    const b = u()
+    while (a === 0) a = uniform()
+    const b = uniform()
     const r = Math.sqrt(-2 * Math.log(a))
     spare = r * Math.sin(2 * Math.PI * b)
     return r * Math.cos(2 * Math.PI * b)
   }
+}
+
+/** A deterministic standard-normal generator from a 32-bit seed. */
+export function normalRng(seed: number): () => number {
+  return normalsFrom(uniformRng(seed))
 }

@@ -15,6 +15,7 @@ import {
   writePartials,
 } from '../../src/store/partials.js'
 import type { PartialMoments } from '../../src/types.js'
+import { mulberry32 as rng } from '../helpers/prng.js'
 
 let root: string
 beforeEach(async () => {
@@ -23,18 +24,6 @@ beforeEach(async () => {
 afterEach(async () => {
   await rm(root, { recursive: true, force: true })
 })
-
-/** Seeded generator (mulberry32) for invented readings. */
-function rng(seed: number): () => number {
-  let a = seed >>> 0
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0
-    let t = a
-    t = Math.imul(t ^ (t >>> 15), t | 1)
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61)
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296
-  }
-}
 
 /** Moments of invented compressor power draw (kW) against minutes into the window. */
 function readings(seed: number, rows: number, trackLag: boolean): Moments {
