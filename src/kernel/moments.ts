@@ -28,6 +28,22 @@ export interface LagBlock {
   inOrder: boolean
 }
 
+/** The floating-point fields of a lag block (all but `pairs` and `inOrder`), in a fixed order. */
+export const lagDoubleFields = [
+  'curXMean',
+  'curYMean',
+  'prevXMean',
+  'prevYMean',
+  'cYy1',
+  'cYx1',
+  'cXy1',
+  'cXx1',
+  'firstX',
+  'firstY',
+  'lastX',
+  'lastY',
+] as const satisfies readonly (keyof LagBlock)[]
+
 /** Moments of one series in one window; x is measured from the window start in `x_unit` (§1.2). */
 export interface Moments {
   /** Accepted rows. */

@@ -3,6 +3,7 @@
  * (design.md "Partials"; statistics.md §1.6: the pipeline never subtracts, it re-merges). Pure.
  */
 import type { LagBlock, Moments } from '../kernel/moments.js'
+import { lagDoubleFields } from '../kernel/moments.js'
 import type { WindowSpec } from '../kernel/window.js'
 import { windowEndOf, windowStartOf } from '../kernel/window.js'
 import type { PartialMoments, SeriesKey } from '../types.js'
@@ -99,22 +100,7 @@ export function sameMoments(a: Moments, b: Moments): boolean {
 }
 
 function sameLag(a: LagBlock, b: LagBlock): boolean {
-  const fields = [
-    'pairs',
-    'curXMean',
-    'curYMean',
-    'prevXMean',
-    'prevYMean',
-    'cYy1',
-    'cYx1',
-    'cXy1',
-    'cXx1',
-    'firstX',
-    'firstY',
-    'lastX',
-    'lastY',
-    'inOrder',
-  ] as const
+  const fields = ['pairs', ...lagDoubleFields, 'inOrder'] as const
   for (const f of fields) if (!Object.is(a[f], b[f])) return false
   return true
 }

@@ -20,7 +20,7 @@ import type { DuckDBConnection, DuckDBValue } from '@duckdb/node-api'
 import { DuckDBInstance } from '@duckdb/node-api'
 import { CantCreateError, DataError, IoError } from '../errors.js'
 import type { LagBlock, Moments } from '../kernel/moments.js'
-import { emptyLag, invalidMomentsReason } from '../kernel/moments.js'
+import { emptyLag, invalidMomentsReason, lagDoubleFields } from '../kernel/moments.js'
 import type { LedgerEntry } from '../plan/files.js'
 import { comparePaths } from '../plan/files.js'
 import type { PartialMoments, SeriesKey } from '../types.js'
@@ -57,21 +57,6 @@ export const partialsColumns = [
   ['lag_last_x', 'DOUBLE'],
   ['lag_last_y', 'DOUBLE'],
   ['lag_in_order', 'BOOLEAN'],
-] as const
-
-const lagDoubleFields = [
-  'curXMean',
-  'curYMean',
-  'prevXMean',
-  'prevYMean',
-  'cYy1',
-  'cYx1',
-  'cXy1',
-  'cXx1',
-  'firstX',
-  'firstY',
-  'lastX',
-  'lastY',
 ] as const
 
 const lagColumnOf = {
