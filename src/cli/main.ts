@@ -34,8 +34,10 @@ async function main(argv: readonly string[]): Promise<void> {
   try {
     await buildCli(argv, deps).parseAsync()
   } catch (err) {
-    const stopped = controller.signal.aborted && !(err instanceof SlopeshiftError && err.exitCode !== ExitCode.software)
-    const final = stopped ? new StoppedError(controller.signal.reason === 'SIGINT' ? 'SIGINT' : 'SIGTERM') : err
+    // A failure after a stop request is the stop itself (an interrupted query, an aborted read).
+    const final = controller.signal.aborted
+      ? new StoppedError(controller.signal.reason === 'SIGINT' ? 'SIGINT' : 'SIGTERM')
+      : err
     const code = exitCodeOf(final)
     if (final instanceof SlopeshiftError) {
       log.fatal({ err: final, code: final.code, exitCode: code, ...final.context }, final.message)
