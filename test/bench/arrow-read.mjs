@@ -35,11 +35,14 @@ if (file === undefined) {
   const source = { path: path.resolve(file), kind: 'arrow-file', size: st.size, mtimeMs: st.mtimeMs, hive: {} }
   const passes = []
   for (let i = 0; i < Number(repsArg); i++) {
+    const cpu0 = process.cpuUsage()
     const t = performance.now()
     const r = await readArrowPartials(source, plan)
     const ms = performance.now() - t
+    const cpu = process.cpuUsage(cpu0)
+    const cpuMs = (cpu.user + cpu.system) / 1000
     const n = r.partials.reduce((a, p) => a + p.moments.n, 0)
-    passes.push({ ms, rows: r.stats.rows, skipped: r.stats.skipped, partials: r.partials.length, pointsUsed: n })
+    passes.push({ ms, cpuMs, rows: r.stats.rows, skipped: r.stats.skipped, partials: r.partials.length, pointsUsed: n })
   }
   console.log(JSON.stringify({ importMs, trackLag: plan.trackLag, passes }))
 }

@@ -18,7 +18,8 @@
  * - tables: the table-writer bench `test/bench/tables-write.ts` (not in the default set).
  * Inputs are generated once (seeded, deterministic) and cached under `.bench/data/`.
  */
-import { mkdir, writeFile } from 'node:fs/promises'
+import { existsSync } from 'node:fs'
+import { mkdir, readFile, writeFile } from 'node:fs/promises'
 import { availableParallelism, cpus, loadavg, totalmem } from 'node:os'
 import path from 'node:path'
 import { parseArgs } from 'node:util'
@@ -131,7 +132,29 @@ results.totalS = (performance.now() - started) / 1000
 results.loadAtEnd = loadavg()
 await mkdir(benchDir, { recursive: true })
 const out = path.join(benchDir, 'results.json')
-await writeFile(out, `${JSON.stringify(results, null, 2)}\n`)
+// keep the latest result of the sections not run this time, so --only runs add up
+let previous: Record<string, unknown> = {}
+if (existsSync(out)) {
+  try {
+    previous = JSON.parse(await readFile(out, 'utf8')) as Record<string, unknown>
+  } catch {
+    previous = {}
+  }
+}
+const kept = Object.fromEntries(
+  Object.entries(previous).filter(
+    ([k]) => ['inputs', 'throughput', 'ledger', 'decide', 'tables'].includes(k) && !(k in results),
+  ),
+)
+const merged = {
+  ...kept,
+  ...results,
+  measuredAt: {
+    ...((previous.measuredAt as object | undefined) ?? {}),
+    ...Object.fromEntries(sections.map((s) => [s, machine.startedAt])),
+  },
+}
+await writeFile(out, `${JSON.stringify(merged, null, 2)}\n`)
 console.log(
   `\ntotal ${(results.totalS as number).toFixed(0)} s; load average at end ${loadavg()
     .map((l) => l.toFixed(1))

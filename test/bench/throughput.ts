@@ -46,6 +46,20 @@ export function parseSummary(stdout: string): SummaryFields | null {
   return null
 }
 
+/** `durationMs` of the first pino log line whose message is one of `messages`; null when absent. */
+function stageMs(stderr: string, messages: readonly string[]): number | null {
+  for (const line of stderr.split('\n')) {
+    if (!line.startsWith('{')) continue
+    try {
+      const v = JSON.parse(line) as { msg?: unknown; durationMs?: unknown }
+      if (typeof v.msg === 'string' && messages.includes(v.msg) && typeof v.durationMs === 'number') return v.durationMs
+    } catch {
+      // not a log line
+    }
+  }
+  return null
+}
+
 /** Aggregate of the reps of one variant. */
 export interface VariantResult {
   readonly label: string
@@ -120,6 +134,7 @@ async function runCli(
   await rm(root, { recursive: true, force: true })
   const run = await runProcess(process.execPath, [cliPath, 'run', '--config', config, '--json', '--full'])
   const s = parseSummary(run.stdout)
+  const readMs = stageMs(run.stderr, ['parquet files read'])
   if (run.exitCode !== 0 || s === null) {
     return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
   }
@@ -129,6 +144,7 @@ async function runCli(
     error: null,
     extra: {
       inProcessDurationMs: s.duration_ms,
+      parquetReadStageMs: readMs,
       series: s.series,
       windows: s.windows.total,
       shifts: s.shifts,
@@ -190,11 +206,17 @@ export interface ThroughputResult {
     slopeshiftRowsPerS: number | null
     handWrittenRowsPerS: number | null
     ratio: number | null
+    /** hand-written CPU s ÷ slopeshift CPU s (whole processes): the ratio with other load on the machine factored out. */
+    cpuRatio: number | null
   }[]
   readonly arrowInProcess: {
     readonly input: string
     readonly serial: Serial
     readonly passMs: number[]
+    /** Process CPU ms (user + system, all threads) of each pass. */
+    readonly passCpuMs: number[]
+    /** Rows ÷ CPU time of the fastest pass by CPU. */
+    readonly bestRowsPerCpuS: number | null
     readonly firstRowsPerS: number | null
     readonly bestRowsPerS: number | null
     readonly importMs: number | null
@@ -251,12 +273,15 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
       const mine = cli.find((c) => c.input === input.name && c.label.endsWith(`serial ${serial}`))
       const a = mine?.rowsPerS ?? null
       const b = base?.rowsPerS ?? null
+      const ca = mine?.medianCpuS ?? null
+      const cb = base?.medianCpuS ?? null
       ratios.push({
         input: input.name,
         serial,
         slopeshiftRowsPerS: a,
         handWrittenRowsPerS: b,
         ratio: a !== null && b !== null ? a / b : null,
+        cpuRatio: ca !== null && cb !== null && ca > 0 ? cb / ca : null,
       })
     }
   }
@@ -277,13 +302,14 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
   if (ratios.length > 0) {
     printTable(
       'ratio = slopeshift rows/s ÷ hand-written DuckDB REGR_* rows/s (same file, same threads, whole processes)',
-      ['input', 'serial', 'slopeshift M rows/s', 'hand-written M rows/s', 'ratio'],
+      ['input', 'serial', 'slopeshift M rows/s', 'hand-written M rows/s', 'ratio (wall)', 'ratio (CPU s)'],
       ratios.map((r) => [
         r.input,
         r.serial,
         fmt((r.slopeshiftRowsPerS ?? Number.NaN) / 1e6, 2),
         fmt((r.handWrittenRowsPerS ?? Number.NaN) / 1e6, 2),
         fmt(r.ratio, 2),
+        fmt(r.cpuRatio, 2),
       ]),
     )
   }
@@ -297,13 +323,16 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
     }
     for (const t of targets) {
       const r = await runArrowInProcess(t.input, t.serial, t.reps)
-      const extra = r.extra as { importMs: number; passes: { ms: number; rows: number }[] } | undefined
+      const extra = r.extra as { importMs: number; passes: { ms: number; cpuMs: number; rows: number }[] } | undefined
       const passMs = extra?.passes.map((p) => p.ms) ?? []
+      const passCpuMs = extra?.passes.map((p) => p.cpuMs) ?? []
       const rows = r.rows
       arrowInProcess.push({
         input: t.input.name,
         serial: t.serial,
         passMs,
+        passCpuMs,
+        bestRowsPerCpuS: rows !== null && passCpuMs.length > 0 ? rows / (Math.min(...passCpuMs) / 1000) : null,
         firstRowsPerS: rows !== null && passMs[0] !== undefined ? rows / (passMs[0] / 1000) : null,
         bestRowsPerS: rows !== null && passMs.length > 0 ? rows / (Math.min(...passMs) / 1000) : null,
         importMs: extra?.importMs ?? null,
@@ -316,12 +345,24 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
     process.stdout.write('\n')
     printTable(
       'arrow in-process: readArrowPartials (dist/dataset/arrow.js) read + accumulate, one fresh process per row, passes in sequence; target ≥ 20 M rows/s',
-      ['input / serial', 'pass ms (each)', 'first M rows/s', 'best M rows/s', 'import ms', 'peak RSS MB', 'load1'],
+      [
+        'input / serial',
+        'pass ms (each)',
+        'pass CPU ms (each)',
+        'first M rows/s',
+        'best M rows/s',
+        'best M rows/CPU s',
+        'import ms',
+        'peak RSS MB',
+        'load1',
+      ],
       arrowInProcess.map((a) => [
         `${a.input} / ${a.serial}`,
         a.error ?? a.passMs.map((m) => fmt(m, 0)).join(', '),
+        a.passCpuMs.map((m) => fmt(m, 0)).join(', '),
         fmt((a.firstRowsPerS ?? Number.NaN) / 1e6, 2),
         fmt((a.bestRowsPerS ?? Number.NaN) / 1e6, 2),
+        fmt((a.bestRowsPerCpuS ?? Number.NaN) / 1e6, 2),
         fmt(a.importMs, 0),
         fmt(a.peakRssMb, 0),
         fmt(a.load1, 1),
