@@ -11,6 +11,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest'
 import type { RunSummary } from '../../src/pipeline/summary.js'
 import { type CliResult, describeResult, hasBuiltCli, noCliReason, runCli } from '../helpers/cli.js'
 import {
+  dayFilePath,
   duplicateIdentities,
   lakeSeries,
   readOutputs,
@@ -117,3 +118,34 @@ describe.skipIf(!hasBuiltCli)(`runJob incremental history (${hasBuiltCli ? 'buil
     expect(full.runs.map((r) => r.run_id)).toEqual([fullSummary?.run_id])
   })
 })
+
+describe.skipIf(!hasBuiltCli)(
+  `runJob after input files are deleted (${hasBuiltCli ? 'built CLI' : noCliReason})`,
+  () => {
+    it('drops exactly the contribution of a deleted late file and of a deleted day, like --full', async () => {
+      // Continue the incremental root of the history above; the last day stays, so the watermark is the same.
+      await rm(dayFilePath(lake, 1, {}, 'late-1'))
+      await rm(path.dirname(dayFilePath(lake, 3)), { recursive: true })
+      const s = await run('late file and day 3 deleted', config)
+      expect(s.files).toMatchObject({ deleted: 2, read: 0 })
+      const inc = await readOutputs(path.join(base, 'inc'))
+      const fresh = path.join(base, 'full-after-delete')
+      const freshConfig = await writeJobConfig(`${fresh}.json`, { paths: [lake], root: fresh })
+      await run('full after delete', freshConfig, '--full')
+      const want = await readOutputs(fresh)
+      expect(want.fits.length).toBe(series * (days - 1))
+      expect(inc.fits).toEqual(want.fits)
+      expect(inc.shifts).toEqual(want.shifts)
+    })
+
+    it('rebuilds an existing root with --full to the tables of a fresh --full run', async () => {
+      const s = await run('full over the incremental root', config, '--full')
+      expect(s.files.read).toBe(s.files.new)
+      const inc = await readOutputs(path.join(base, 'inc'))
+      const want = await readOutputs(path.join(base, 'full-after-delete'))
+      expect(inc.fits).toEqual(want.fits)
+      expect(inc.shifts).toEqual(want.shifts)
+      expect(duplicateIdentities(inc.runs as never, ['run_id'])).toEqual([])
+    })
+  },
+)
