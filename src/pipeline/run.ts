@@ -143,7 +143,8 @@ async function runLocked(
   const replacedEntries = [...filePlan.changed.map((f) => f.previous), ...filePlan.deleted].filter((e) => e !== null)
   const oldPartials = await readStoredPartials(ledgerPartialsFiles(root, replacedEntries))
   const affected = affectedWindows(oldPartials, read.partials, k, window)
-  const maxTsMs = maxOf(committed.maxTsMs, maxTimestampMs(read.partials, config))
+  // `ledger`, not `committed`: --full ignores the old latest timestamp too (its files may be gone).
+  const maxTsMs = maxOf(ledger.maxTsMs, maxTimestampMs(read.partials, config))
   const watermarkMs =
     (config.detect.watermark === 'clock' ? startedAt : (maxTsMs ?? startedAt)) - config.detect.allowedLatenessMs
   const starts = new Set<number>(affected.map((a) => a.windowStartMs))
