@@ -220,10 +220,17 @@ export async function readOutputs(
   root: string,
   keyColumns: readonly string[] = ['site', 'unit'],
 ): Promise<TableSnapshot> {
-  const fits = await readTable('fits', path.join(root, 'fits'), keyColumns)
-  const shifts = await readTable('shifts', path.join(root, 'shifts'), keyColumns)
-  const runs = await readTable('runs', path.join(root, 'runs'), [])
-  return { fits: fits.map(withoutRunColumns), shifts: shifts.map(withoutRunColumns), runs }
+  const instance = await DuckDBInstance.create(':memory:', { threads: '1' })
+  const connection = await instance.connect()
+  try {
+    const fits = await readTable('fits', path.join(root, 'fits'), keyColumns, { connection })
+    const shifts = await readTable('shifts', path.join(root, 'shifts'), keyColumns, { connection })
+    const runs = await readTable('runs', path.join(root, 'runs'), [], { connection })
+    return { fits: fits.map(withoutRunColumns), shifts: shifts.map(withoutRunColumns), runs }
+  } finally {
+    connection.closeSync()
+    instance.closeSync()
+  }
 }
 
 function withoutRunColumns(row: object): Record<string, unknown> {

@@ -138,11 +138,18 @@ describe.skipIf(!hasBuiltCli)(
       expect(inc.shifts).toEqual(want.shifts)
     })
 
-    it('rebuilds an existing root with --full to the tables of a fresh --full run', async () => {
-      const s = await run('full over the incremental root', config, '--full')
+    it('rebuilds an existing root with --full to the tables of a fresh --full run, even after the last day is gone', async () => {
+      // Without the last day the latest timestamp moves back a day: a fresh --full run sees day 4 as open again.
+      // --full ignores the ledger, so the old watermark must not keep day 4 closed.
+      await rm(path.dirname(dayFilePath(lake, days - 1)), { recursive: true })
+      const s = await run('last day deleted, full over the incremental root', config, '--full')
       expect(s.files.read).toBe(s.files.new)
+      const fresh = path.join(base, 'full-after-last-day')
+      const freshConfig = await writeJobConfig(`${fresh}.json`, { paths: [lake], root: fresh })
+      await run('fresh full without the last day', freshConfig, '--full')
       const inc = await readOutputs(path.join(base, 'inc'))
-      const want = await readOutputs(path.join(base, 'full-after-delete'))
+      const want = await readOutputs(fresh)
+      expect(want.fits.filter((f) => f.window_state === 'open').length).toBe(series)
       expect(inc.fits).toEqual(want.fits)
       expect(inc.shifts).toEqual(want.shifts)
       expect(duplicateIdentities(inc.runs as never, ['run_id'])).toEqual([])
