@@ -154,7 +154,7 @@ export async function benchLedger(opts: LedgerOptions): Promise<LedgerResult> {
   const lake = path.join(dir, 'lake')
   const extra = path.join(lake, `part=${opts.files}`)
   await rm(extra, { recursive: true, force: true })
-  const work = path.join(benchDir, 'work', 'ledger')
+  const work = path.join(benchDir, 'work', `ledger-${opts.files}x${opts.rowsPerFile}`)
   const root = path.join(work, 'out')
   await rm(work, { recursive: true, force: true })
   await mkdir(work, { recursive: true })
