@@ -22,7 +22,7 @@ import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Momen
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import { seriesId } from '../types.js'
 import { type DuckDbSession, openDuckDb } from './duckdb.js'
-import { momentsQuery, quoteString, type XStorage } from './sql.js'
+import { type CalendarSpan, calendarSpans, momentsQuery, quoteString, type XStorage } from './sql.js'
 
 export interface ReadParquetOptions {
   /** DuckDB worker threads (≥ 1). */
@@ -76,9 +76,18 @@ export async function readParquetPartials(
     for (const group of groupByFileKeys(files, plan)) {
       signal?.throwIfAborted()
       const x = checkColumns(group.files, plan, schemas)
+      const paths = group.files.map((f) => f.path)
+      const map = plan.window.kind === 'calendar' ? await calendarMap(db, paths, plan, x) : null
       const q = momentsQuery(
         plan,
-        { kind: 'parquet', files: group.files.map((f) => f.path), x, fileKeys: group.fileKeys, fileIndex: true },
+        {
+          kind: 'parquet',
+          files: paths,
+          x,
+          fileKeys: group.fileKeys,
+          fileIndex: true,
+          ...(map === null ? {} : { calendarMap: map }),
+        },
         'duckdb',
       )
       const result = await runScan(db, wrapQuery(q.sql, q.columns.length, q.keys.length), group.files, signal)
@@ -93,6 +102,34 @@ export async function readParquetPartials(
     signal?.removeEventListener('abort', onAbort)
     db.close()
   }
+}
+
+const msPerEpochUnit: Readonly<Record<MomentsPlan['x']['epochUnit'], number>> = { s: 1000, ms: 1, us: 0.001, ns: 1e-6 }
+
+/**
+ * The calendar bucket map (sql.ts `calendarSpans`) over the x range the files' footers record (row-group
+ * min/max statistics, no data scan). Statistics are only a hint: rows outside the map take the per-row
+ * time-zone path, so missing or wrong statistics cost speed, never correctness. Null when the footers
+ * have no usable statistics.
+ */
+async function calendarMap(
+  db: DuckDbSession,
+  paths: readonly string[],
+  plan: MomentsPlan,
+  x: XStorage,
+): Promise<CalendarSpan[] | null> {
+  const toMs = (v: string) =>
+    x.kind === 'timestamp'
+      ? `epoch_ms(TRY_CAST(${v} AS TIMESTAMPTZ))`
+      : `TRY_CAST(${v} AS DOUBLE) * ${msPerEpochUnit[plan.x.epochUnit]}`
+  const result = await db.run(
+    `SELECT CAST(min(${toMs('stats_min_value')}) AS DOUBLE), CAST(max(${toMs('stats_max_value')}) AS DOUBLE)
+     FROM parquet_metadata([${paths.map((p) => quoteString(p)).join(', ')}])
+     WHERE path_in_schema = ${quoteString(plan.x.column)}`,
+  )
+  const [lo, hi] = ((await result.getRowsJS())[0] ?? []) as unknown[]
+  if (typeof lo !== 'number' || typeof hi !== 'number') return null
+  return calendarSpans(plan.window, Math.floor(lo), Math.floor(hi))
 }
 
 /** Top-level columns of one file: name → DuckDB type text. */

@@ -17,7 +17,7 @@
  * Rows whose timestamp is null or not finite land in a group with `window_start_ms` NULL, n = 0: they
  * count for the file only.
  */
-import { msPerXUnit } from '../kernel/window.js'
+import { msPerXUnit, type WindowSpec, windowEndOf, windowStartOf } from '../kernel/window.js'
 import type { MomentsPlan } from '../types.js'
 
 export type SqlDialect = 'duckdb' | 'postgres' | 'ansi'
@@ -52,6 +52,13 @@ export type SqlSource =
        * integer is cheaper to hash per row than a path. The `file` output column then holds the index.
        */
       readonly fileIndex?: boolean
+      /**
+       * Calendar windows only: a precomputed map from UTC buckets to window starts (`calendarSpans`).
+       * Rows whose bucket is in the map skip the per-row time-zone arithmetic; the others (outside the
+       * map, or in a bucket that a window boundary cuts) still take it, so the result never depends on
+       * the map being complete.
+       */
+      readonly calendarMap?: readonly CalendarSpan[]
     }
   | {
       /** A table or view whose column names are those of the plan. Dotted names are quoted per part. */
@@ -103,6 +110,48 @@ export const lagColumns = [
   'last_y',
   'out_of_order',
 ] as const
+
+/** Width (ms) of the UTC buckets of a calendar map: 15 minutes, the granularity of modern UTC offsets. */
+export const calendarBucketMs = 900_000
+
+/**
+ * One calendar window of a bucket map: every instant in the UTC buckets `fromBucket` (inclusive) to
+ * `toBucket` (exclusive), bucket b being [b·calendarBucketMs, (b + 1)·calendarBucketMs), lies in the
+ * window that starts at `startMs` (epoch ms).
+ */
+export interface CalendarSpan {
+  readonly startMs: number
+  readonly fromBucket: number
+  readonly toBucket: number
+}
+
+/**
+ * The bucket map of the calendar windows that overlap [minMs, maxMs] (epoch ms), built with
+ * `windowStartOf`/`windowEndOf` so it agrees with the streaming kernel. A window [s, e) contributes the
+ * buckets that lie wholly inside it; a bucket cut by a boundary that is not a multiple of 15 minutes
+ * (historical local mean time offsets, e.g. before 1900) is left out, and its rows take the per-row path.
+ * Returns null for fixed windows, a non-finite or reversed range, or more than `maxWindows` windows
+ * (the map is then not worth its size).
+ */
+export function calendarSpans(
+  spec: WindowSpec,
+  minMs: number,
+  maxMs: number,
+  maxWindows = 20_000,
+): CalendarSpan[] | null {
+  if (spec.kind !== 'calendar' || !Number.isFinite(minMs) || !Number.isFinite(maxMs) || maxMs < minMs) return null
+  const out: CalendarSpan[] = []
+  for (let s = windowStartOf(spec, minMs); s <= maxMs; ) {
+    if (out.length >= maxWindows) return null
+    const e = windowEndOf(spec, s)
+    if (!(e > s)) return null
+    const fromBucket = Math.ceil(s / calendarBucketMs)
+    const toBucket = Math.floor(e / calendarBucketMs)
+    if (toBucket > fromBucket) out.push({ startMs: s, fromBucket, toBucket })
+    s = e
+  }
+  return out
+}
 
 /** Quotes an SQL identifier (standard double quotes; embedded quotes doubled). */
 export function quoteIdent(name: string): string {
@@ -298,14 +347,29 @@ class Gen {
         ? `epoch_ms(timezone(${tz}, ${ts}))`
         : `CAST(EXTRACT(EPOCH FROM (${ts} AT TIME ZONE ${tz})) * 1000 AS BIGINT)`
     const toTicks = (ms: string) => (this.ticks === 's' ? this.exactDiv(ms, 1000) : tpm === 1 ? ms : `${ms} * ${tpm}`)
+    const spans = this.source.kind === 'parquet' && duck ? (this.source.calendarMap ?? []) : []
+    const icu = `(CASE WHEN ss_e < ss_c AND ${naiveMs(local('ss_e'))} = ss_trm THEN ss_e ELSE ss_c END)`
+    if (spans.length === 0) {
+      return [
+        `ss_tms AS (\n  SELECT ${carry}, ${this.msExpr()} AS ss_tm FROM ss_src\n)`,
+        `ss_cal1 AS (\n  SELECT ${carry}, date_trunc('${unit}', ${local('ss_tm')}) AS ss_tr FROM ss_tms\n)`,
+        `ss_cal2 AS (\n  SELECT ${carry}, ${naiveMs('ss_tr')} AS ss_trm, ${instant('ss_tr')} AS ss_c FROM ss_cal1\n)`,
+        `ss_cal3 AS (\n  SELECT ${carry}, ss_trm, ss_c, ss_trm - (${naiveMs(local('ss_c - 1'))} - (ss_c - 1)) AS ss_e FROM ss_cal2\n)`,
+        `ss_win AS (\n  SELECT ${carry},\n         ${toTicks(icu)} AS ss_wt\n  FROM ss_cal3\n)`,
+      ]
+    }
+    // Bucket map (calendarSpans): a hash join on the 15-minute UTC bucket replaces the per-row ICU calls;
+    // rows without a map entry (ss_cws NULL) take the ICU path, which CASE evaluates for those rows only.
+    const values = spans.map((p) => `(${p.startMs}, ${p.fromBucket}, ${p.toBucket})`).join(', ')
+    const unmapped = (e: string) => `CASE WHEN ss_cws IS NULL THEN ${e} END`
     return [
+      `ss_cmap AS (\n  SELECT unnest(range(ss_lo, ss_hi)) AS ss_b, ss_ws AS ss_cws FROM (VALUES ${values}) v(ss_ws, ss_lo, ss_hi)\n)`,
       `ss_tms AS (\n  SELECT ${carry}, ${this.msExpr()} AS ss_tm FROM ss_src\n)`,
-      `ss_cal1 AS (\n  SELECT ${carry}, date_trunc('${unit}', ${local('ss_tm')}) AS ss_tr FROM ss_tms\n)`,
-      `ss_cal2 AS (\n  SELECT ${carry}, ${naiveMs('ss_tr')} AS ss_trm, ${instant('ss_tr')} AS ss_c FROM ss_cal1\n)`,
-      `ss_cal3 AS (\n  SELECT ${carry}, ss_trm, ss_c, ss_trm - (${naiveMs(local('ss_c - 1'))} - (ss_c - 1)) AS ss_e FROM ss_cal2\n)`,
-      `ss_win AS (\n  SELECT ${carry},\n` +
-        `         ${toTicks(`(CASE WHEN ss_e < ss_c AND ${naiveMs(local('ss_e'))} = ss_trm THEN ss_e ELSE ss_c END)`)} AS ss_wt\n` +
-        '  FROM ss_cal3\n)',
+      `ss_cal0 AS (\n  SELECT ${carry}, ss_tm, ss_cws FROM ss_tms LEFT JOIN ss_cmap ON ${this.floorDiv('ss_tm', calendarBucketMs)} = ss_b\n)`,
+      `ss_cal1 AS (\n  SELECT ${carry}, ss_cws, ${unmapped(`date_trunc('${unit}', ${local('ss_tm')})`)} AS ss_tr FROM ss_cal0\n)`,
+      `ss_cal2 AS (\n  SELECT ${carry}, ss_cws, ${naiveMs('ss_tr')} AS ss_trm, ${instant('ss_tr')} AS ss_c FROM ss_cal1\n)`,
+      `ss_cal3 AS (\n  SELECT ${carry}, ss_cws, ss_trm, ss_c, ss_trm - (${naiveMs(local('ss_c - 1'))} - (ss_c - 1)) AS ss_e FROM ss_cal2\n)`,
+      `ss_win AS (\n  SELECT ${carry},\n         ${toTicks(`COALESCE(ss_cws, ${icu})`)} AS ss_wt\n  FROM ss_cal3\n)`,
     ]
   }
 
