@@ -3,7 +3,6 @@
  * files one at a time through our kernel. Checks the abort signal between files.
  */
 
-import { readArrowPartials } from '../dataset/arrow.js'
 import { readParquetPartials } from '../dataset/parquet.js'
 import type { Logger } from '../log.js'
 import type { MomentsPlan, PartialMoments, ReadStats, SourceFile } from '../types.js'
@@ -49,7 +48,10 @@ export async function readPartials(
       'parquet files read',
     )
   }
+  // Loaded only when needed: apache-arrow and the codecs cost start-up time on every Parquet-only run.
+  const { readArrowPartials } = arrow.length > 0 ? await import('../dataset/arrow.js') : { readArrowPartials: null }
   for (const file of arrow) {
+    if (readArrowPartials === null) break
     options.signal?.throwIfAborted()
     const before = rows
     const r = await readArrowPartials(file, plan, {

@@ -3,7 +3,6 @@ import path from 'node:path'
 import { fileURLToPath } from 'node:url'
 import type { CommandModule } from 'yargs'
 import { parseConfigText, resolveConfig } from '../../config/load.js'
-import { writeDemoLake } from '../../demo/write.js'
 import { runJob } from '../../pipeline/run.js'
 import { readTable } from '../../tables/read.js'
 import type { CliDeps } from '../deps.js'
@@ -30,6 +29,7 @@ export function demoCommand(deps: CliDeps): CommandModule<object, Args> {
         .option('json', { type: 'boolean', default: false, describe: 'print the run summary as JSON on stdout' }),
     handler: async (args) => {
       const dir = path.resolve(args.dir)
+      const { writeDemoLake } = await import('../../demo/write.js')
       const lake = await writeDemoLake(path.join(dir, 'lake'))
       deps.log.info(
         { dir: lake.dataDir, parquetRows: lake.parquetRows, arrowRows: lake.arrowRows },
