@@ -36,6 +36,9 @@ export interface CliResult {
   readonly summary: RunSummary | null
   /** Wall time from spawn to exit, ms. */
   readonly durationMs: number
+  /** Epoch ms at spawn and at exit (comparable with the `time` field of the log lines). */
+  readonly spawnedAtMs: number
+  readonly exitedAtMs: number
 }
 
 export interface CliOptions {
@@ -57,6 +60,7 @@ export interface CliProcess {
 /** Starts `node <cli> ...args`; the caller may signal `child` and awaits `result`. */
 export function spawnCli(args: readonly string[], options: CliOptions = {}): CliProcess {
   const started = performance.now()
+  const spawnedAtMs = Date.now()
   const child = spawn(process.execPath, [cliPath, ...args], {
     cwd: options.cwd ?? projectRoot,
     env: { ...process.env, SLOPESHIFT_LOG_LEVEL: 'debug', ...options.env },
@@ -94,6 +98,8 @@ export function spawnCli(args: readonly string[], options: CliOptions = {}): Cli
         lastLog: logs.at(-1) ?? null,
         summary: (jsonLines(stdout).at(-1) as RunSummary | undefined) ?? null,
         durationMs: performance.now() - started,
+        spawnedAtMs,
+        exitedAtMs: Date.now(),
       })
     })
   })
