@@ -22,7 +22,7 @@ import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Momen
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import { seriesId } from '../types.js'
 import { type DuckDbSession, openDuckDb } from './duckdb.js'
-import { type CalendarSpan, calendarSpans, momentsQuery, quoteString, type XStorage } from './sql.js'
+import { type CalendarSpan, calendarSpans, momentsQuery, quoteIdent, quoteString, type XStorage } from './sql.js'
 
 export interface ReadParquetOptions {
   /** DuckDB worker threads (≥ 1). */
@@ -73,11 +73,14 @@ export async function readParquetPartials(
     const schemas = await readSchemas(db, files, signal)
     const stats = new Map<string, ReadStats>(files.map((f) => [f.path, { file: f.path, rows: 0, skipped: 0 }]))
     const runs: SeriesRun[] = []
+    const lag = plan.trackLag && plan.weight === null
+    let scan = 0
     for (const group of groupByFileKeys(files, plan)) {
       signal?.throwIfAborted()
       const x = checkColumns(group.files, plan, schemas)
       const paths = group.files.map((f) => f.path)
       const map = plan.window.kind === 'calendar' ? await calendarMap(db, paths, plan, x) : null
+      const enums = lag ? await keyEnums(db, plan, group, scan++, signal) : []
       const q = momentsQuery(
         plan,
         {
@@ -87,6 +90,7 @@ export async function readParquetPartials(
           fileKeys: group.fileKeys,
           fileIndex: true,
           ...(map === null ? {} : { calendarMap: map }),
+          ...(enums.length === 0 ? {} : { keyEnums: enums }),
         },
         'duckdb',
       )
@@ -130,6 +134,36 @@ async function calendarMap(
   const [lo, hi] = ((await result.getRowsJS())[0] ?? []) as unknown[]
   if (typeof lo !== 'number' || typeof hi !== 'number') return null
   return calendarSpans(plan.window, Math.floor(lo), Math.floor(hi))
+}
+
+/**
+ * Creates one ENUM type per key column read from the files (not the Hive ones) from its distinct text
+ * values, for the lag block's sort (sql.ts `keyEnums`). A key-only scan: dictionary pages make it cheap.
+ * `tag` keeps the type names of several scans in one session apart.
+ */
+async function keyEnums(
+  db: DuckDbSession,
+  plan: MomentsPlan,
+  group: FileGroup,
+  tag: number,
+  signal: AbortSignal | undefined,
+): Promise<string[]> {
+  const files = `[${group.files.map((f) => quoteString(f.path)).join(', ')}]`
+  const names: string[] = []
+  for (const key of plan.keys) {
+    if (group.fileKeys.includes(key)) continue
+    const name = `ss_enum_${tag}_${names.length}`
+    const col = `CAST(${quoteIdent(key)} AS VARCHAR)`
+    await runScan(
+      db,
+      `CREATE TYPE ${quoteIdent(name)} AS ENUM (SELECT DISTINCT ${col} FROM read_parquet(${files}, ` +
+        `hive_partitioning = false, union_by_name = true) WHERE ${col} IS NOT NULL)`,
+      group.files,
+      signal,
+    )
+    names.push(name)
+  }
+  return names
 }
 
 /** Top-level columns of one file: name → DuckDB type text. */

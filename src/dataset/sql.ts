@@ -59,6 +59,12 @@ export type SqlSource =
        * the map being complete.
        */
       readonly calendarMap?: readonly CalendarSpan[]
+      /**
+       * ENUM type names (created by the caller from the distinct values) for the key columns the query
+       * groups by, in the order of `MomentsQuery.keys`. Rows then carry small integer codes instead of
+       * strings, which makes the lag block's sort much cheaper; the output columns are text again.
+       */
+      readonly keyEnums?: readonly string[]
     }
   | {
       /** A table or view whose column names are those of the plan. Dotted names are quoted per part. */
@@ -275,7 +281,9 @@ class Gen {
     else if (s.fileColumn !== undefined) cols.push(`CAST(${quoteIdent(s.fileColumn)} AS VARCHAR) AS ss_file`)
     else cols.push(`CAST(${quoteString(s.table)} AS VARCHAR) AS ss_file`)
     this.keys.forEach((k, i) => {
-      cols.push(`CAST(${quoteIdent(k)} AS VARCHAR) AS ss_k${i}`)
+      const e = this.keyEnum(i)
+      const text = `CAST(${quoteIdent(k)} AS VARCHAR)`
+      cols.push(`${e === null ? text : `CAST(${text} AS ${quoteIdent(e)})`} AS ss_k${i}`)
     })
     cols.push(`${this.ticksExpr(quoteIdent(p.x.column))} AS ss_t`)
     cols.push(`CAST(${quoteIdent(p.y.column)} AS ${this.dbl}) AS ss_y`)
@@ -417,7 +425,9 @@ class Gen {
     const toMs = (wt: string) => (this.ticks === 's' ? `${wt} * 1000` : tpm === 1 ? wt : this.exactDiv(wt, tpm))
     const lead = (p: string) => [
       `${p}ss_file AS "file"`,
-      ...this.keys.map((k, i) => `${p}ss_k${i} AS ${quoteIdent(k)}`),
+      ...this.keys.map(
+        (k, i) => `${this.keyEnum(i) === null ? `${p}ss_k${i}` : `CAST(${p}ss_k${i} AS VARCHAR)`} AS ${quoteIdent(k)}`,
+      ),
       `${toMs(`${p}ss_wt`)} AS window_start_ms`,
     ]
     let body: string
@@ -426,6 +436,11 @@ class Gen {
     else body = this.plainBody(ctes, groupCols, lead(''))
     const columns = ['file', ...this.keys, 'window_start_ms', ...momentColumns, ...(this.lag ? lagColumns : [])]
     return { sql: body, keys: this.keys, columns }
+  }
+
+  /** The ENUM type of key column i of the query, or null (text). */
+  private keyEnum(i: number): string | null {
+    return this.source.kind === 'parquet' ? (this.source.keyEnums?.[i] ?? null) : null
   }
 
   private hasRn(): boolean {

@@ -105,6 +105,23 @@ describe('readParquetPartials', () => {
     )
   })
 
+  it('puts rows next to boundaries that are not on a 15-minute grid (Monrovia 1971, −00:44:30) where windowStartOf does', async () => {
+    // The bucket map leaves the cut buckets out, so these rows take the per-row time-zone path.
+    const spec = parseWindow('day', 'Africa/Monrovia') as WindowSpec
+    const instants: number[] = []
+    for (let s = windowStartOf(spec, Date.UTC(1971, 4, 1)); s < Date.UTC(1971, 4, 6); s = windowEndOf(spec, s)) {
+      for (const d of [-900_001, -60_000, -1, 0, 1, 60_000, 900_000, 43_200_000]) instants.push(s + d)
+    }
+    const f = await writeProbes('monrovia-1971.parquet', instants)
+    const { partials } = await readParquetPartials([f], planFor(spec), { threads: 2 })
+    expect(partials).toHaveLength(instants.length)
+    for (const p of partials) {
+      const t = instants[Number(p.key[0])] as number
+      expect(p.windowStartMs, new Date(t).toISOString()).toBe(windowStartOf(spec, t))
+      expect(p.moments.xMin).toBe((t - p.windowStartMs) / 3_600_000)
+    }
+  })
+
   it.each(['15m', '2h', '1d', '7d'])('aligns fixed %s windows to the epoch, before 1970 too', async (size) => {
     const instants = [-86_400_001, -3_600_000, -1, 0, 1, 899_999, 900_000, 604_799_999, 604_800_000, 1777852800123]
     const f = await writeProbes(`fixed-${size}.parquet`, instants)

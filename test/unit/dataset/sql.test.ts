@@ -1,5 +1,7 @@
 import { describe, expect, it } from 'vitest'
 import {
+  calendarBucketMs,
+  calendarSpans,
   lagColumns,
   momentColumns,
   momentsQuery,
@@ -7,7 +9,7 @@ import {
   quoteIdent,
   quoteString,
 } from '../../../src/dataset/sql.js'
-import { parseWindow, type WindowSpec } from '../../../src/kernel/window.js'
+import { parseWindow, type WindowSpec, windowEndOf, windowStartOf } from '../../../src/kernel/window.js'
 import type { MomentsPlan } from '../../../src/types.js'
 
 const plan: MomentsPlan = {
@@ -175,5 +177,68 @@ describe('momentsSql', () => {
     expect(sql).toContain('CAST("we""ird" AS VARCHAR) AS ss_k0')
     expect(sql).toContain('; y = y -- x\n') // the header comment stays on one line
     expect(sql).toContain('CAST("y\n-- x" AS DOUBLE PRECISION) AS ss_y') // inside quotes: still one identifier
+  })
+})
+
+describe('calendarSpans', () => {
+  const berlinDay = parseWindow('day', 'Europe/Berlin') as WindowSpec
+
+  it('maps whole 15-minute buckets to the windowStartOf windows across a DST change (Berlin, 29 March 2026)', () => {
+    const lo = Date.UTC(2026, 2, 28, 5)
+    const hi = Date.UTC(2026, 2, 30, 5)
+    const spans = calendarSpans(berlinDay, lo, hi) ?? []
+    expect(spans.map((p) => p.startMs)).toEqual([
+      windowStartOf(berlinDay, lo),
+      windowStartOf(berlinDay, Date.UTC(2026, 2, 29, 12)),
+      windowStartOf(berlinDay, hi),
+    ])
+    for (const [i, p] of spans.entries()) {
+      expect(p.fromBucket * calendarBucketMs).toBe(p.startMs)
+      expect(p.toBucket * calendarBucketMs).toBe(windowEndOf(berlinDay, p.startMs))
+      if (i > 0) expect(p.fromBucket).toBe(spans[i - 1]?.toBucket)
+    }
+    expect((spans[1]?.toBucket ?? 0) - (spans[1]?.fromBucket ?? 0)).toBe(92) // a 23-hour day
+  })
+
+  it('leaves out the bucket a boundary cuts when the offset is not a multiple of 15 minutes (Monrovia 1971, −00:44:30)', () => {
+    const monrovia = parseWindow('day', 'Africa/Monrovia') as WindowSpec
+    const spans = calendarSpans(monrovia, Date.UTC(1971, 4, 1), Date.UTC(1971, 4, 3)) ?? []
+    expect(spans).toHaveLength(3)
+    for (const [i, p] of spans.entries()) {
+      expect(p.startMs % calendarBucketMs).not.toBe(0)
+      expect(p.fromBucket).toBe(Math.ceil(p.startMs / calendarBucketMs))
+      if (i > 0) expect(p.fromBucket).toBe((spans[i - 1]?.toBucket ?? 0) + 1)
+    }
+  })
+
+  it('returns null for fixed windows, a reversed range, or more windows than allowed', () => {
+    expect(calendarSpans(parseWindow('1d') as WindowSpec, 0, 86_400_000)).toBeNull()
+    expect(calendarSpans(berlinDay, 86_400_000, 0)).toBeNull()
+    expect(calendarSpans(berlinDay, 0, 10 * 86_400_000, 5)).toBeNull()
+    expect(calendarSpans(berlinDay, 0, 3 * 86_400_000, 5)).toHaveLength(4)
+  })
+})
+
+describe('momentsQuery', () => {
+  const cal = { ...plan, window: parseWindow('month', 'Asia/Kathmandu') as WindowSpec }
+  const spans = calendarSpans(cal.window, Date.UTC(2026, 0, 10), Date.UTC(2026, 1, 10)) ?? []
+
+  it('joins a calendar bucket map and keeps the time-zone path for the rows outside it', () => {
+    const sql = momentsQuery(cal, { ...parquet, calendarMap: spans }, 'duckdb').sql
+    expect(sql).toContain(`FROM (VALUES (${spans[0]?.startMs}, ${spans[0]?.fromBucket}, ${spans[0]?.toBucket}), (`)
+    expect(sql).toContain(
+      'LEFT JOIN ss_cmap ON (ss_tm // 900000 - CASE WHEN ss_tm % 900000 < 0 THEN 1 ELSE 0 END) = ss_b',
+    )
+    expect(sql).toContain("CASE WHEN ss_cws IS NULL THEN date_trunc('month', timezone('Asia/Kathmandu'")
+    expect(sql).toContain('COALESCE(ss_cws, (CASE WHEN ss_e < ss_c')
+    expect(momentsQuery(cal, parquet, 'duckdb').sql).not.toContain('ss_cmap')
+    expect(momentsSql(cal, table, 'duckdb')).not.toContain('ss_cmap')
+  })
+
+  it('casts the key columns to the given ENUM types and back to text in the output', () => {
+    const sql = momentsQuery({ ...plan, trackLag: true }, { ...parquet, keyEnums: ['ss_e"0'] }, 'duckdb').sql
+    expect(sql).toContain('CAST(CAST("unit" AS VARCHAR) AS "ss_e""0") AS ss_k0')
+    expect(sql).toContain('CAST(ss_k0 AS VARCHAR) AS "unit"')
+    expect(sql).toContain('PARTITION BY ss_file, ss_k0, ss_wt')
   })
 })
