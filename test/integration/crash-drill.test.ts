@@ -1,17 +1,21 @@
 /**
  * Issue #4, check 3: the crash drill. An incremental run (a new day, a late file for an old day, a day rewritten in
- * place) is SIGKILLed at ≥ 30 seeded random moments spread uniformly over the measured length of a clean run, so
- * kills land in every stage (start-up, lock, plan, read, partials, staging, publish, ledger commit, exit). After
- * each kill a rerun (not killed) must converge to the tables of a clean reference run: nothing lost, no duplicate
- * identity, no temp file visible in fits/, shifts/ or runs/, the staging folder empty, the same ledger. A few
- * extra kills aim at the publish window itself (manifest written, ledger not yet committed), where the next run
+ * place) is SIGKILLed at ≥ 30 seeded random moments, then rerun (not killed); the rerun must converge to the tables
+ * of a clean reference run: nothing lost, no duplicate identity, no temp file visible in fits/, shifts/ or runs/,
+ * the staging folder empty, the partials of the killed run collected, the same ledger.
+ *
+ * Delays are uniform over the measured length of a clean run, drawn from a seeded generator, in two halves: one
+ * measured from spawn (start-up, lock, recovery, everything after), one from the "run started" log line to exit
+ * (the run's own stages: plan, read, partials, merge, staging, publish, ledger commit). On a busy machine Node's
+ * start-up takes most of a run, so delays from spawn alone would mostly kill a process still loading modules.
+ * Two more kills aim at the publish window itself (manifest written, ledger not yet committed), where the next run
  * must roll the half-published tables back.
  *
  * Work is spread over a few workers, each with its own output root (the lake is shared and never written during
- * the drill), to keep the wall time low: about 2 min on an idle 2-core machine, 4–5 min on one busy with other
- * jobs (every run then spends most of its time starting Node and loading modules), hence the 8 min timeout.
+ * the drill). About 2–3 min on an idle 2-core machine; 5–7 min on one busy with other jobs (load 10–15), hence
+ * the 10 min timeout.
  */
-import { cp, mkdtemp, readdir, rm } from 'node:fs/promises'
+import { cp, mkdtemp, readdir, readFile, rm } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
 import path from 'node:path'
 import { afterAll, beforeAll, describe, expect, it } from 'vitest'
@@ -30,7 +34,7 @@ import {
   writeLateFile,
 } from '../helpers/lake.js'
 
-const workers = Number(process.env.SLOPESHIFT_CRASH_WORKERS ?? 5)
+const workers = Number(process.env.SLOPESHIFT_CRASH_WORKERS ?? 4)
 const randomKills = Number(process.env.SLOPESHIFT_CRASH_KILLS ?? 30)
 /** Extra kills at the moment a publish manifest appears. */
 const publishKills = 2
@@ -43,19 +47,24 @@ interface Reference {
   readonly tables: TableSnapshot
   readonly ledger: { path: string; fingerprint: string }[]
   readonly durationMs: number
+  /** From its "run started" log line to exit, ms. */
+  readonly workMs: number
   /** Names of the partials files the reference keeps. */
   readonly partials: string[]
 }
 
 interface Drill {
-  readonly kind: 'random' | 'publish'
+  /** spawn/work: random delay from spawn or from "run started"; publish: when a publish manifest appears. */
+  readonly kind: 'spawn' | 'work' | 'publish'
   readonly delayMs: number
   readonly killed: boolean
-  /** Last log message before the kill (the stage reached), or `(none)`. */
+  /** Last log message before the kill, or `(none)`. */
+  readonly lastLog: string
+  /** The stage the kill interrupted, as the files it left show (see {@link stageOnDisk}). */
   readonly stage: string
   readonly rerun: CliResult
-  /** Duration of the drilled run when the kill came too late and it did all the work (a clean run), else null. */
-  readonly uncut: number | null
+  /** Runs that did all the work unkilled (the kill came too late, or the rerun): clean-run lengths. */
+  readonly clean: readonly CliResult[]
 }
 
 let base: string
@@ -77,6 +86,17 @@ afterAll(async () => {
 /** A job config writing to `root`; every worker reads the same lake (input paths in the ledger stay equal). */
 async function configFor(root: string): Promise<string> {
   return writeJobConfig(`${root}.json`, { paths: [lake], root })
+}
+
+/** Run id in the run lock left by a killed run, if any. */
+async function lockHolderRunId(root: string): Promise<string | undefined> {
+  try {
+    const holder: unknown = JSON.parse(await readFile(path.join(root, '_state', 'run.lock'), 'utf8'))
+    const id = typeof holder === 'object' && holder !== null && 'runId' in holder ? holder.runId : undefined
+    return typeof id === 'string' ? id : undefined
+  } catch {
+    return undefined
+  }
 }
 
 async function partialsNames(root: string): Promise<string[]> {
@@ -105,13 +125,42 @@ async function setUp(): Promise<Reference> {
     tables: await readOutputs(root),
     ledger: await ledgerFacts(root),
     durationMs: clean.durationMs,
+    workMs: runLength(clean, 'work') ?? clean.durationMs,
     partials: await partialsNames(root),
   }
 }
 
 /**
- * Restores `root` to the committed state before the drilled run, SIGKILLs a run after `delayMs` (random) or when
- * a publish manifest appears (publish), then reruns it to completion and checks it against the reference.
+ * Which stage a killed run reached, from what it left on disk: `committed` (the ledger names it), `publishing` (a
+ * publish manifest exists), `staging tables` (its staging folder exists), `partials written` (partials files, whole
+ * or temp, that the committed state did not have), `locked` (it holds the run lock: recovery, plan, read), or
+ * `starting` (Node start-up, config load).
+ */
+async function stageOnDisk(root: string, runId: string | undefined): Promise<string> {
+  const state = path.join(root, '_state')
+  if (runId !== undefined && (await readLedger(root)).committedRunId === runId) return 'committed'
+  for (const r of await readdir(path.join(state, 'staging')).catch(() => [] as string[])) {
+    const inner = await readdir(path.join(state, 'staging', r, '.publish')).catch(() => [] as string[])
+    if (inner.includes('manifest.json')) return 'publishing'
+  }
+  if ((await readdir(path.join(state, 'staging')).catch(() => [])).length > 0) return 'staging tables'
+  const known = new Set(await partialsNames(before))
+  if ((await partialsNames(root)).some((n) => !known.has(n))) return 'partials written'
+  if ((await readdir(state).catch(() => [] as string[])).includes('run.lock')) return 'locked'
+  return 'starting'
+}
+
+/** Length of a clean run, ms: from spawn (`spawn`) or from its "run started" log line (`work`) to exit. */
+function runLength(r: CliResult, from: 'spawn' | 'work'): number | null {
+  if (from === 'spawn') return r.durationMs
+  const t = r.logs.find((l) => l.msg === 'run started')?.time
+  return typeof t === 'number' ? r.exitedAtMs - t : null
+}
+
+/**
+ * Restores `root` to the committed state before the drilled run, SIGKILLs a run `delayMs` after spawn (spawn),
+ * after its "run started" line (work) or when a publish manifest appears (publish), then reruns it to completion
+ * and checks the result against the reference.
  */
 async function drill(root: string, config: string, kind: Drill['kind'], delayMs: number): Promise<Drill> {
   await rm(root, { recursive: true, force: true })
@@ -119,15 +168,20 @@ async function drill(root: string, config: string, kind: Drill['kind'], delayMs:
   const proc = spawnCli(['run', '--config', config, '--json'])
   let timer: NodeJS.Timeout | undefined
   let polling = true
-  if (kind === 'random') timer = setTimeout(() => proc.child.kill('SIGKILL'), delayMs)
-  else {
+  const kill = () => proc.child.kill('SIGKILL')
+  if (kind === 'spawn') timer = setTimeout(kill, delayMs)
+  else if (kind === 'work') {
+    void proc.waitForLog('"run started"').then((seen) => {
+      if (seen) timer = setTimeout(kill, delayMs)
+    })
+  } else {
     const staging = path.join(root, '_state', 'staging')
     void (async () => {
       while (polling) {
         for (const r of await readdir(staging).catch(() => [] as string[])) {
           const inner = await readdir(path.join(staging, r, '.publish')).catch(() => [] as string[])
           if (inner.includes('manifest.json')) {
-            proc.child.kill('SIGKILL')
+            kill()
             return
           }
         }
@@ -140,12 +194,14 @@ async function drill(root: string, config: string, kind: Drill['kind'], delayMs:
   clearTimeout(timer)
   const killed = killedRun.signal === 'SIGKILL'
   if (!killed) expect(killedRun.code, describeResult(killedRun)).toBe(0)
-  const stage = typeof killedRun.lastLog?.msg === 'string' ? killedRun.lastLog.msg : '(none)'
-  const killedRunId = killedRun.logs.find((l) => typeof l.runId === 'string')?.runId
+  const lastLog = typeof killedRun.lastLog?.msg === 'string' ? killedRun.lastLog.msg : '(none)'
+  const logged = killedRun.logs.find((l) => typeof l.runId === 'string')?.runId
+  const killedRunId = typeof logged === 'string' ? logged : await lockHolderRunId(root)
+  const stage = killed ? await stageOnDisk(root, killedRunId) : 'finished'
   const killedCommitted = killedRunId !== undefined && (await readLedger(root)).committedRunId === killedRunId
 
   const rerun = await runCli(['run', '--config', config, '--json'])
-  const label = `${kind} kill at ${delayMs} ms (${killed ? `killed after "${stage}"` : 'not killed'})`
+  const label = `${kind} kill at ${delayMs} ms (${killed ? `killed while ${stage}, after log "${lastLog}"` : 'not killed'})`
   expect(rerun.code, `${label}: ${describeResult(rerun)}`).toBe(0)
   // The rerun redoes exactly the uncommitted work: everything, or nothing when the killed run had committed.
   expect(rerun.summary?.files.read, label).toBe(killedCommitted ? 0 : drilledFiles)
@@ -161,12 +217,13 @@ async function drill(root: string, config: string, kind: Drill['kind'], delayMs:
   expect(await ledgerFacts(root), label).toEqual(reference.ledger)
   // Partials of the killed run (complete or `*.tmp-<pid>`) were collected: exactly the reference's remain.
   expect(await partialsNames(root), label).toEqual(reference.partials)
-  if (trace)
+  if (trace) {
     console.info(
       `${label}: killed run ${Math.round(killedRun.durationMs)} ms, rerun ${Math.round(rerun.durationMs)} ms`,
     )
-  const uncut = !killed && killedRun.summary?.files.read === drilledFiles ? killedRun.durationMs : null
-  return { kind, delayMs, killed, stage, rerun, uncut }
+  }
+  const clean = [killedRun, rerun].filter((r) => r.code === 0 && r.summary?.files.read === drilledFiles)
+  return { kind, delayMs, killed, lastLog, stage, rerun, clean }
 }
 
 describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' : noCliReason})`, () => {
@@ -174,16 +231,16 @@ describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' :
     const started = performance.now()
     reference = await setUp()
     if (trace) console.info(`set up in ${Math.round(performance.now() - started)} ms`)
-    // Delays are seeded fractions of a clean run's length, re-estimated as the lower quartile of the clean runs
-    // seen so far: parallel workers slow every run down, and a delay past the run's end kills nothing. Draws go on
-    // until 30 runs were killed (at most 15 extra draws).
+    // Clean-run lengths are re-estimated as the lower quartile of the clean runs seen so far: parallel workers
+    // slow every run down, and a delay past the run's end kills nothing. Draws go on until 30 runs were killed
+    // (at most 15 extra draws).
     const rng = uniformRng(seed)
-    const cleanRuns: number[] = [reference.durationMs]
-    const cleanMs = (): number => {
-      const sorted = [...cleanRuns].sort((x, y) => x - y)
-      return sorted[Math.floor((sorted.length - 1) / 4)] ?? reference.durationMs
+    const lengths = { spawn: [reference.durationMs], work: [reference.workMs] }
+    const cleanMs = (from: 'spawn' | 'work'): number => {
+      const sorted = [...lengths[from]].sort((x, y) => x - y)
+      return sorted[Math.floor((sorted.length - 1) / 4)] ?? 0
     }
-    const tasks: Drill['kind'][] = Array(publishKills).fill('publish')
+    const aimed: Drill['kind'][] = Array(publishKills).fill('publish')
     let draws = 0
     let kills = 0
     await Promise.all(
@@ -191,28 +248,33 @@ describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' :
         const root = path.join(base, `w${w}`)
         const config = await configFor(root)
         for (;;) {
-          const kind = tasks.shift() ?? (kills < randomKills && draws < randomKills + 15 ? 'random' : null)
+          let kind = aimed.shift() ?? null
+          if (kind === null && kills < randomKills && draws < randomKills + 15)
+            kind = draws++ % 2 === 0 ? 'spawn' : 'work'
           if (kind === null) break
-          if (kind === 'random') draws++
-          const d = await drill(root, config, kind, kind === 'random' ? Math.floor(rng() * cleanMs()) : -1)
+          const delayMs = kind === 'publish' ? -1 : Math.floor(rng() * cleanMs(kind))
+          const d = await drill(root, config, kind, delayMs)
           drills.push(d)
-          if (kind === 'random' && d.killed) kills++
-          if (d.rerun.summary?.files.read === drilledFiles) cleanRuns.push(d.rerun.durationMs)
-          if (d.uncut !== null) cleanRuns.push(d.uncut)
+          if (kind !== 'publish' && d.killed) kills++
+          for (const r of d.clean) {
+            lengths.spawn.push(r.durationMs)
+            const work = runLength(r, 'work')
+            if (work !== null) lengths.work.push(work)
+          }
         }
       }),
     )
-    const random = drills.filter((d) => d.kind === 'random')
+    const random = drills.filter((d) => d.kind !== 'publish')
     const killed = random.filter((d) => d.killed)
     const stages = new Map<string, number>()
     for (const d of killed) stages.set(d.stage, (stages.get(d.stage) ?? 0) + 1)
     const publish = drills.filter((d) => d.kind === 'publish')
     const summary = {
       referenceRunMs: Math.round(reference.durationMs),
-      cleanRunLowerQuartileMs: Math.round(cleanMs()),
+      cleanRunMs: { spawn: Math.round(cleanMs('spawn')), work: Math.round(cleanMs('work')) },
       randomDraws: random.length,
       killed: killed.length,
-      lastLogBeforeKill: Object.fromEntries(stages),
+      stageKilled: Object.fromEntries(stages),
       publishKills: publish.filter((d) => d.killed).length,
       rolledBackByRerun: drills.filter((d) => d.rerun.stderr.includes('uncommitted publish rolled back')).length,
       wallMs: Math.round(performance.now() - started),
@@ -220,9 +282,9 @@ describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' :
     console.info(`crash drill: ${JSON.stringify(summary)}`)
     // ≥ 30 kills, landing in several stages (the draws are uniform over a clean run's length).
     expect(killed.length).toBeGreaterThanOrEqual(randomKills)
-    expect(stages.size).toBeGreaterThanOrEqual(Math.min(3, randomKills))
+    expect(stages.size, JSON.stringify(summary.stageKilled)).toBeGreaterThanOrEqual(Math.min(4, randomKills))
     // The aimed kills hit the publish window, and the rerun rolled their half-published tables back.
     expect(publish.every((d) => d.killed)).toBe(true)
     expect(publish.every((d) => d.rerun.stderr.includes('uncommitted publish rolled back'))).toBe(true)
-  }, 480_000)
+  }, 600_000)
 })
