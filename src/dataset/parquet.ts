@@ -80,7 +80,7 @@ export async function readParquetPartials(
       const x = checkColumns(group.files, plan, schemas)
       const paths = group.files.map((f) => f.path)
       const map = plan.window.kind === 'calendar' ? await calendarMap(db, paths, plan, x) : null
-      const enums = lag ? await keyEnums(db, plan, group, scan++, signal) : []
+      const enums = lag || plan.weight !== null ? await keyEnums(db, plan, group, scan++, signal) : []
       const q = momentsQuery(
         plan,
         {
@@ -138,7 +138,8 @@ async function calendarMap(
 
 /**
  * Creates one ENUM type per key column read from the files (not the Hive ones) from its distinct text
- * values, for the lag block's sort (sql.ts `keyEnums`). A key-only scan: dictionary pages make it cheap.
+ * values, for the lag block's sort and the weighted mode's join (sql.ts `keyEnums`); the plain hash aggregate
+ * gains nothing from them. A key-only scan: dictionary pages make it cheap.
  * `tag` keeps the type names of several scans in one session apart.
  */
 async function keyEnums(

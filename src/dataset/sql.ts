@@ -62,7 +62,8 @@ export type SqlSource =
       /**
        * ENUM type names (created by the caller from the distinct values) for the key columns the query
        * groups by, in the order of `MomentsQuery.keys`. Rows then carry small integer codes instead of
-       * strings, which makes the lag block's sort much cheaper; the output columns are text again.
+       * strings, which makes the lag block's sort and the weighted join cheaper; the output columns are
+       * text again.
        */
       readonly keyEnums?: readonly string[]
     }

@@ -402,6 +402,26 @@ describe('readParquetPartials', () => {
     expect(partials.reduce((s, p) => s + p.moments.n, 0)).toBe(114)
   })
 
+  it('keeps null and numeric key values apart in weighted mode: unit weights give the unweighted moments', async () => {
+    const rows: RawValue[][] = workedRows().map((r, i) => [i % 3 === 0 ? null : 'x', ...r.slice(1)])
+    const path = join(dir, 'null-keys-weighted.parquet')
+    await writer.write(path, rawCols, rows, { select: 'tenant, 7 AS rack, epoch_ms(ts_ms) AS ts, used_gib, 1.0 AS w' })
+    const keys = ['tenant', 'rack']
+    const weighted = await readParquetPartials(
+      [await source(path)],
+      planFor({ keys, weight: { column: 'w', kind: 'precision' }, trackLag: false }),
+      { threads: 2 },
+    )
+    const plain = await readParquetPartials([await source(path)], planFor({ keys, trackLag: false }), { threads: 2 })
+    expect(weighted.partials.map((p) => `${seriesId(p.key)}|${p.windowStartMs}`)).toEqual(
+      plain.partials.map((p) => `${seriesId(p.key)}|${p.windowStartMs}`),
+    )
+    expect(new Set(weighted.partials.map((p) => seriesId(p.key)))).toEqual(new Set(['[null,"7"]', '["x","7"]']))
+    weighted.partials.forEach((p, i) => {
+      expectSameMoments(p.moments, plain.partials[i]?.moments as Moments, 1e-12)
+    })
+  })
+
   it('returns no partials and rows = 0 for a zero-row file', async () => {
     const path = join(dir, 'empty.parquet')
     await writer.write(path, rawCols, [], { select: 'tenant, epoch_ms(ts_ms) AS ts, used_gib' })
