@@ -75,7 +75,9 @@ async function signalDrill(
   const tablesBefore = await tableFiles(root)
 
   const proc = spawnCli(['run', '--config', config, '--json'])
-  expect(await proc.waitForLog('"run started"'), 'run never started').toBe(true)
+  if (!(await proc.waitForLog('"run started"'))) {
+    expect.fail(`run ended before it started: ${describeResult(await proc.result)}`)
+  }
   proc.child.kill(signal)
   const stopped = await proc.result
   expect(stopped.code, describeResult(stopped)).toBe(expectedCode)
