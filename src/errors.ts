@@ -103,7 +103,7 @@ export class StoppedError extends SlopeshiftError {
     super(
       'SLOPESHIFT_STOPPED',
       signal === 'SIGINT' ? ExitCode.sigint : ExitCode.sigterm,
-      `run stopped by ${signal}; nothing partial was committed, rerun to continue`,
+      `run stopped by ${signal}; work not yet committed was discarded (committed results and queued digests stay), rerun to continue`,
     )
   }
 }
