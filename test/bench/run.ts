@@ -4,7 +4,7 @@
  * printed, never asserted (style.md §4.6).
  *
  *   tsx test/bench/run.ts [--only parquet,arrow,decide,ledger,tables] [--reps 3] [--threads 2]
- *                         [--decide-series 1000000] [--ledger-files 10000] [--ledger-budget 3600] [--quick]
+ *                         [--decide-series 1000000] [--ledger-files 10000] [--ledger-budget 900] [--quick]
  *
  * Sections:
  * - parquet: `slopeshift run` whole process on 10 M rows (Parquet snappy, zstd) vs a hand-written
@@ -40,7 +40,7 @@ const { values } = parseArgs({
     threads: { type: 'string', default: '2' },
     'decide-series': { type: 'string', default: '1000000' },
     'ledger-files': { type: 'string', default: '10000' },
-    'ledger-budget': { type: 'string', default: '3600' },
+    'ledger-budget': { type: 'string', default: '900' },
     quick: { type: 'boolean', default: false },
   },
 })
