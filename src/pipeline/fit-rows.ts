@@ -33,7 +33,7 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
     const m = s.moments
     if (m.n === 0) continue
     const end = windowEndOf(ctx.window, s.windowStartMs)
-    const fit = fitLine(m, { weights })
+    const fit = fitLine(m, { weights, pValue: false })
     const line = fit.kind === 'fit' ? fit : null
     const serial = line !== null && weights === 'none' ? serialStats(m, line.slope, line.rss, mode) : null
     const proj = line === null ? noProjection : projectionColumns(line, s.windowStartMs, end, serial?.nEff, ctx.config)

@@ -142,6 +142,7 @@ async function runLocked(
   })
   signal?.throwIfAborted()
   const byFile = groupByFile(read.partials)
+  let mark = performance.now()
   for (const f of [...filePlan.new, ...filePlan.changed]) {
     await writePartials(partialsFilePath(root, f.path, f.fingerprint ?? ''), byFile.get(f.path) ?? [], { connection })
   }
@@ -150,6 +151,12 @@ async function runLocked(
   // Which windows change: partials replaced, baselines moved, windows closed by the new watermark, --from/--to.
   const replacedEntries = [...filePlan.changed.map((f) => f.previous), ...filePlan.deleted].filter((e) => e !== null)
   const oldPartials = await readStoredPartials(ledgerPartialsFiles(root, replacedEntries), { connection })
+  const lap = (stage: string, extra: Record<string, number> = {}): void => {
+    const now = performance.now()
+    log.debug({ stage, durationMs: Math.round(now - mark), ...extra }, 'stage finished')
+    mark = now
+  }
+  lap('partials stored', { files: toRead.length })
   const affected = affectedWindows(oldPartials, read.partials, k, window)
   // `ledger`, not `committed`: --full ignores the old latest timestamp too (its files may be gone).
   const maxTsMs = maxOf(ledger.maxTsMs, maxTimestampMs(read.partials, config))
@@ -182,12 +189,15 @@ async function runLocked(
     readStarts.size === 0 ? [] : await readStoredPartials(unchangedFiles, { windowStarts: [...readStarts], connection })
   const fresh = read.partials.filter((p) => readStarts.has(p.windowStartMs))
   const states: MergedState[] = mergePartials([...stored, ...fresh])
+  lap('partials merged', { states: states.length })
   const current = states.filter((s) => starts.has(s.windowStartMs))
   const fits = fitRows(current, { config, window, watermarkMs, runId, computedAtMs: startedAt })
+  lap('fitted', { fits: fits.length })
   const targets = fits
     .filter((f) => f.window_state === 'closed')
     .map((f) => ({ id: seriesId(f.key), key: f.key, windowStartMs: f.window_start }))
   const shifts = shiftRows(targets, states, { config, window, runId })
+  lap('tested', { shifts: shifts.length })
   signal?.throwIfAborted()
 
   // Stage the tables, publish, commit.
@@ -225,6 +235,7 @@ async function runLocked(
 
   const rowsRead = read.stats.reduce((a, s) => a + s.rows, 0)
   const rowsSkipped = read.stats.reduce((a, s) => a + s.skipped, 0)
+  lap('tables staged')
   const stage = await stageDigests({
     job: config.job,
     runId,
@@ -274,8 +285,10 @@ async function runLocked(
     stagingDir: path.join(staging, 'runs'),
   })
   signal?.throwIfAborted()
+  lap('digests staged')
   await publish(staging, root, { remove })
   await commitLedger(root, runId, ledgerAfter(filePlan, runId), { maxTsMs, watermarkMs })
+  lap('published and committed')
   await discardStaging(staging)
   await gcPartials(root, { files: ledgerAfter(filePlan, runId) })
   log.info({ files: toRead.length, rows: rowsRead, fits: fits.length, shifts: shifts.length }, 'run committed')

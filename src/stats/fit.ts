@@ -12,6 +12,11 @@ export type WeightKind = 'none' | 'precision' | 'frequency'
 export interface FitOptions {
   /** `none` and `precision`: df = n − 2; `frequency`: df = w_sum − 2 (statistics.md §1.5). */
   readonly weights: WeightKind
+  /**
+   * Compute the two-sided p of H0: slope = 0 (default true). The fits table does not store it, and the
+   * t CDF is the costliest step of a fit, so bulk callers turn it off; `p` is then null.
+   */
+  readonly pValue?: boolean
 }
 
 /** Residual sum below this share of `syy` is rounding, not signal (statistics.md §2.2, §7.2). */
@@ -115,7 +120,7 @@ export function fitLine(m: Moments, opts: FitOptions): FitResult {
   let p: number | null
   if (slopeSe > 0) {
     t = slope / slopeSe
-    p = tTwoSidedP(t, df)
+    p = opts.pValue === false ? null : tTwoSidedP(t, df)
   } else if (slope !== 0) {
     t = slope > 0 ? Number.POSITIVE_INFINITY : Number.NEGATIVE_INFINITY
     p = 0
