@@ -356,5 +356,28 @@ export function partitionName(table: TableName, epochMs: number): string | null 
   return `${tableSpecs[table].partitionColumn}=${date}`
 }
 
+/**
+ * The check a non-null value of `column` must pass, in row form (counts and epoch ms as numbers), chosen once
+ * per column: VARCHAR a string (one of `values` when set), BIGINT a safe integer, DOUBLE a number, BOOLEAN a
+ * boolean, TIMESTAMPTZ epoch ms within the JS Date range. Shared by the writer and the reader.
+ */
+export function valueCheck(column: ColumnSpec): (raw: unknown) => boolean {
+  const allowed = column.values
+  switch (column.type) {
+    case 'VARCHAR':
+      return allowed === undefined
+        ? (raw) => typeof raw === 'string'
+        : (raw) => typeof raw === 'string' && allowed.includes(raw)
+    case 'BIGINT':
+      return (raw) => typeof raw === 'number' && Number.isSafeInteger(raw)
+    case 'DOUBLE':
+      return (raw) => typeof raw === 'number'
+    case 'BOOLEAN':
+      return (raw) => typeof raw === 'boolean'
+    case 'TIMESTAMPTZ':
+      return (raw) => typeof raw === 'number' && Math.abs(raw) <= maxDateMs
+  }
+}
+
 /** File name of the one file in every partition folder: fixed, so rewrites replace it and reruns match. */
 export const partitionFileName = 'part-0.parquet'

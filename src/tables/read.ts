@@ -7,7 +7,15 @@ import { readdir, stat } from 'node:fs/promises'
 import { join } from 'node:path'
 import type { DuckDBConnection } from '@duckdb/node-api'
 import { DataError, IoError } from '../errors.js'
-import { type ColumnSpec, orderColumns, type TableName, type TableRows, tableColumns, tableSpecs } from './columns.js'
+import {
+  type ColumnSpec,
+  orderColumns,
+  type TableName,
+  type TableRows,
+  tableColumns,
+  tableSpecs,
+  valueCheck,
+} from './columns.js'
 import { quoteIdent, quoteLiteral, withConnection } from './duckdb.js'
 import { errnoCode, isErrno } from './publish.js'
 
@@ -181,24 +189,8 @@ const invalid: unique symbol = Symbol('invalid')
 
 /** Checks one value as {@link readExpr} returns it and gives the row field; chosen per column. */
 function fromDuckConverter(column: ColumnSpec): (raw: unknown) => unknown {
-  const convert = ((): ((raw: unknown) => unknown) => {
-    const allowed = column.values
-    switch (column.type) {
-      case 'VARCHAR':
-        return allowed === undefined
-          ? (raw) => (typeof raw === 'string' ? raw : invalid)
-          : (raw) => (typeof raw === 'string' && allowed.includes(raw) ? raw : invalid)
-      case 'BIGINT':
-        return (raw) => (typeof raw === 'number' && Number.isSafeInteger(raw) ? raw : invalid)
-      case 'TIMESTAMPTZ':
-        return (raw) => (typeof raw === 'number' ? raw : invalid)
-      case 'DOUBLE':
-        return (raw) => (typeof raw === 'number' ? raw : invalid)
-      case 'BOOLEAN':
-        return (raw) => (typeof raw === 'boolean' ? raw : invalid)
-    }
-  })()
-  return (raw) => (raw === null || raw === undefined ? (column.nullable ? null : invalid) : convert(raw))
+  const check = valueCheck(column)
+  return (raw) => (raw === null || raw === undefined ? (column.nullable ? null : invalid) : check(raw) ? raw : invalid)
 }
 
 function valueError(table: TableName, dir: string, column: ColumnSpec, raw: unknown): DataError {

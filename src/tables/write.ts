@@ -33,6 +33,7 @@ import {
   type TableRows,
   tableColumns,
   tableSpecs,
+  valueCheck,
 } from './columns.js'
 import { quoteIdent, quoteLiteral, uniqueTempTableName, withConnection } from './duckdb.js'
 import { errnoCode, makeDir, type PendingFile, removeQuietly, renameAll, syncFile } from './publish.js'
@@ -263,9 +264,6 @@ function checkKey(table: TableName, index: number, key: unknown, length: number)
 
 const dayMs = 86_400_000
 
-/** Largest |epoch ms| accepted for a TIMESTAMPTZ column: the JS Date range. */
-const maxTimestampMs = 8.64e15
-
 /** What a converter returns for a value its column cannot hold. */
 const invalid: unique symbol = Symbol('invalid')
 
@@ -281,24 +279,9 @@ interface Converter {
 
 /** One converter per column, chosen once per write rather than per value (the load loop runs per cell). */
 function converterFor(column: ColumnSpec): Converter {
-  const convert = ((): ((raw: unknown) => LoadValue | typeof invalid) => {
-    const allowed = column.values
-    switch (column.type) {
-      case 'VARCHAR':
-        return allowed === undefined
-          ? (raw) => (typeof raw === 'string' ? raw : invalid)
-          : (raw) => (typeof raw === 'string' && allowed.includes(raw) ? raw : invalid)
-      case 'BIGINT':
-        return (raw) => (typeof raw === 'number' && Number.isSafeInteger(raw) ? raw : invalid)
-      case 'DOUBLE':
-        return (raw) => (typeof raw === 'number' ? raw : invalid)
-      case 'BOOLEAN':
-        return (raw) => (typeof raw === 'boolean' ? raw : invalid)
-      case 'TIMESTAMPTZ':
-        // Loaded as epoch ms; stored in µs (DuckDB TIMESTAMPTZ): whole ms round-trip exactly, fractions are rounded.
-        return (raw) => (typeof raw === 'number' && Math.abs(raw) <= maxTimestampMs ? raw : invalid)
-    }
-  })()
+  // Loaded as epoch ms for TIMESTAMPTZ; stored in µs: whole ms round-trip exactly, fractions are rounded.
+  const check = valueCheck(column)
+  const convert = (raw: unknown): LoadValue | typeof invalid => (check(raw) ? (raw as LoadValue) : invalid)
   const expected = {
     VARCHAR: column.values === undefined ? 'a string' : `one of ${column.values.join(', ')}`,
     BIGINT: 'a whole number',
