@@ -24,3 +24,10 @@ export function momentsPlanOf(config: Config): MomentsPlan {
     trackLag: w === undefined && config.detect.serial !== 'off',
   }
 }
+
+/** Human-readable baseline description for the `baseline` column. */
+export function baselineLabel(config: Config): string {
+  const k = config.detect.baselineWindows
+  if (k === 1) return 'previous window'
+  return `${k} previous windows, ${config.detect.baselineKind === 'merged-line' ? 'merged line' : 'common slope'}`
+}

@@ -10,6 +10,9 @@ import type { Moments } from '../kernel/moments.js'
 import { msPerXUnit, previousWindowStart, type WindowSpec, windowEndOf } from '../kernel/window.js'
 import type { SeriesKey, ShiftRow } from '../types.js'
 import { weightKindOf } from './fit-rows.js'
+import { baselineLabel } from './plan.js'
+
+export { baselineLabel } from './plan.js'
 
 export interface ShiftContext {
   readonly config: Config
@@ -24,13 +27,6 @@ export interface TestTarget {
   readonly windowStartMs: number
 }
 
-/** Human-readable baseline description for the `baseline` column. */
-export function baselineLabel(config: Config): string {
-  const k = config.detect.baselineWindows
-  if (k === 1) return 'previous window'
-  return `${k} previous windows, ${config.detect.baselineKind === 'merged-line' ? 'merged line' : 'common slope'}`
-}
-
 /**
  * Tests every target against its baseline. `states` must hold the targets' windows and their k
  * previous windows (missing ones simply have no data). Rows are sorted by window, then series id.
@@ -43,11 +39,16 @@ export function shiftRows(
   const { config, window } = ctx
   const k = config.detect.baselineWindows
   const unitMs = msPerXUnit[config.window.xUnit]
-  const byId = new Map<string, Moments>()
-  for (const s of states) byId.set(`${s.id}\u0000${s.windowStartMs}`, s.moments)
+  // Series id → window start → moments: one string hash per lookup, no composite key strings.
+  const byId = new Map<string, Map<number, Moments>>()
+  for (const s of states) {
+    const w = byId.get(s.id)
+    if (w === undefined) byId.set(s.id, new Map([[s.windowStartMs, s.moments]]))
+    else w.set(s.windowStartMs, s.moments)
+  }
   const families = new Map<number, TestTarget[]>()
   for (const t of targets) {
-    if (!byId.has(`${t.id}\u0000${t.windowStartMs}`)) continue
+    if (byId.get(t.id)?.has(t.windowStartMs) !== true) continue
     const list = families.get(t.windowStartMs)
     if (list === undefined) families.set(t.windowStartMs, [t])
     else list.push(t)
@@ -66,17 +67,18 @@ export function shiftRows(
     const candidates: ShiftCandidate[] = []
     const firstBaseline: (number | null)[] = []
     for (const t of family) {
+      const windows = byId.get(t.id) as Map<number, Moments>
       const baseline: Moments[] = []
       const offsets: number[] = []
       let first: number | null = null
       for (const b of baselineStarts) {
-        const m = byId.get(`${t.id}\u0000${b}`)
+        const m = windows.get(b)
         if (m === undefined || m.n === 0) continue
         baseline.push(m)
         offsets.push((b - start) / unitMs)
         first ??= b
       }
-      candidates.push({ current: byId.get(`${t.id}\u0000${start}`) as Moments, baseline, baselineOffsets: offsets })
+      candidates.push({ current: windows.get(start) as Moments, baseline, baselineOffsets: offsets })
       firstBaseline.push(first)
     }
     const decisions = decideWindowFamily(candidates, config.detect, { weights })

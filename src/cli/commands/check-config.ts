@@ -1,5 +1,4 @@
 import type { CommandModule } from 'yargs'
-import { loadConfig } from '../../config/load.js'
 import type { CliDeps } from '../deps.js'
 
 interface Args {
@@ -13,6 +12,7 @@ export function checkConfigCommand(deps: CliDeps): CommandModule<object, Args> {
     describe: 'validate a config file and print it with defaults filled in',
     builder: (y) => y.option('config', { type: 'string', demandOption: true, describe: 'YAML or JSON config file' }),
     handler: async (args) => {
+      const { loadConfig } = await import('../../config/load.js')
       const { config, file } = await loadConfig(args.config)
       const masked = {
         ...config,

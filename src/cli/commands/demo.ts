@@ -2,9 +2,6 @@ import { readFile } from 'node:fs/promises'
 import path from 'node:path'
 import { fileURLToPath } from 'node:url'
 import type { CommandModule } from 'yargs'
-import { parseConfigText, resolveConfig } from '../../config/load.js'
-import { runJob } from '../../pipeline/run.js'
-import { readTable } from '../../tables/read.js'
 import type { CliDeps } from '../deps.js'
 import { createProgress } from '../progress.js'
 import { renderSummary } from './run.js'
@@ -29,7 +26,12 @@ export function demoCommand(deps: CliDeps): CommandModule<object, Args> {
         .option('json', { type: 'boolean', default: false, describe: 'print the run summary as JSON on stdout' }),
     handler: async (args) => {
       const dir = path.resolve(args.dir)
-      const { writeDemoLake } = await import('../../demo/write.js')
+      const [{ writeDemoLake }, { parseConfigText, resolveConfig }, { runJob }, { readTable }] = await Promise.all([
+        import('../../demo/write.js'),
+        import('../../config/load.js'),
+        import('../../pipeline/run.js'),
+        import('../../tables/read.js'),
+      ])
       const lake = await writeDemoLake(path.join(dir, 'lake'))
       deps.log.info(
         { dir: lake.dataDir, parquetRows: lake.parquetRows, arrowRows: lake.arrowRows },

@@ -1,12 +1,9 @@
 import path from 'node:path'
 import type { CommandModule } from 'yargs'
-import { loadConfig } from '../../config/load.js'
 import type { Config } from '../../config/schema.js'
 import { UsageError } from '../../errors.js'
 import { windowStartOf } from '../../kernel/window.js'
-import { windowSpecOf } from '../../pipeline/plan.js'
-import { baselineLabel } from '../../pipeline/shift-rows.js'
-import { readTable } from '../../tables/read.js'
+import { baselineLabel, windowSpecOf } from '../../pipeline/plan.js'
 import { type FitRow, type SeriesKey, type ShiftRow, seriesId } from '../../types.js'
 import type { CliDeps } from '../deps.js'
 
@@ -29,6 +26,10 @@ export function explainCommand(deps: CliDeps): CommandModule<object, Args> {
         .option('window', { type: 'string', describe: 'an instant or date inside the window (default: latest tested)' })
         .option('json', { type: 'boolean', default: false, describe: 'print JSON on stdout' }),
     handler: async (args) => {
+      const [{ loadConfig }, { readTable }] = await Promise.all([
+        import('../../config/load.js'),
+        import('../../tables/read.js'),
+      ])
       const { config } = await loadConfig(args.config)
       const key = parseSeries(args.series, config.source.keys)
       const id = seriesId(key)

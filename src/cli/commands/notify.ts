@@ -1,8 +1,5 @@
 import path from 'node:path'
 import type { CommandModule } from 'yargs'
-import { loadConfig } from '../../config/load.js'
-import { flushOutbox, undeliveredError } from '../../notify/flush.js'
-import { pending } from '../../notify/outbox.js'
 import type { CliDeps } from '../deps.js'
 
 interface Args {
@@ -25,6 +22,11 @@ export function notifyCommand(deps: CliDeps): CommandModule<object, Args> {
         .option('dry-run', { type: 'boolean', default: false, describe: 'print what would be sent; send nothing' })
         .option('json', { type: 'boolean', default: false, describe: 'print JSON on stdout' }),
     handler: async (args) => {
+      const [{ loadConfig }, { flushOutbox, undeliveredError }, { pending }] = await Promise.all([
+        import('../../config/load.js'),
+        import('../../notify/flush.js'),
+        import('../../notify/outbox.js'),
+      ])
       const { config } = await loadConfig(args.config)
       const root = config.output.root
       if (args['dry-run']) {

@@ -1,7 +1,5 @@
 import type { CommandModule } from 'yargs'
-import { loadConfig } from '../../config/load.js'
 import { UsageError } from '../../errors.js'
-import { runJob } from '../../pipeline/run.js'
 import type { RunSummary } from '../../pipeline/summary.js'
 import type { CliDeps } from '../deps.js'
 import { createProgress } from '../progress.js'
@@ -54,6 +52,11 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
         }),
     handler: async (args) => {
       const range = timeRange(args.from, args.to)
+      // Loaded on demand: `--help`, `--version` and other commands start without the engines.
+      const [{ loadConfig }, { runJob }] = await Promise.all([
+        import('../../config/load.js'),
+        import('../../pipeline/run.js'),
+      ])
       const { config } = await loadConfig(args.config)
       const progress = createProgress(deps.log, args.progress && deps.isTty, deps.now)
       let summary: RunSummary
