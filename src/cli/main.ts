@@ -49,3 +49,7 @@ async function main(argv: readonly string[]): Promise<void> {
 }
 
 await main(process.argv.slice(2))
+// Exit as soon as the command is done and stdout has drained: waiting for the event loop to empty
+// only adds engine teardown (freeing the embedded database's buffers, joining its threads) to every
+// run's wall time. Every file and table was closed by the command itself.
+process.stdout.write('', () => process.exit())
