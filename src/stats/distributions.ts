@@ -44,8 +44,25 @@ export function tUpperP(t: number, df: number): number {
  * `tQuantile(0.975, 38) = 2.0243941639`. `df = ∞` gives the normal quantile (to about 1e-10).
  */
 export function tQuantile(p: number, df: number): number {
-  return tQuantileStdlib(p, finiteDf(df))
+  // Memoised: a run asks for the same (p, df) pair once per window (df = n − 2 for equal-sized windows),
+  // and one evaluation costs several microseconds. The cached value is the library's own, bit for bit.
+  if (p === lastQuantile.p && df === lastQuantile.df) return lastQuantile.q
+  const cache = quantileCache.get(p)
+  const hit = cache?.get(df)
+  if (hit !== undefined) return hit
+  const q = tQuantileStdlib(p, finiteDf(df))
+  if (cache === undefined) quantileCache.set(p, new Map([[df, q]]))
+  else if (cache.size < quantileCacheLimit) cache.set(df, q)
+  lastQuantile.p = p
+  lastQuantile.df = df
+  lastQuantile.q = q
+  return q
 }
+
+/** Quantiles by probability, then df; bounded so real-valued df (serial-adjusted) cannot grow it without end. */
+const quantileCache = new Map<number, Map<number, number>>()
+const quantileCacheLimit = 4096
+const lastQuantile = { p: Number.NaN, df: Number.NaN, q: Number.NaN }
 
 /**
  * Upper tail `P(F(d1, d2) > f)` for the Chow test (statistics.md §3.3, §8.11). Computed as the lower
