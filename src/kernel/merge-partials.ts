@@ -29,27 +29,35 @@ export function comparePartials(a: PartialMoments, b: PartialMoments): number {
  * Empty partials (n = 0, only skipped rows) still count their skipped rows.
  */
 export function mergePartials(partials: Iterable<PartialMoments>): MergedState[] {
-  const groups = new Map<string, PartialMoments[]>()
+  // Series id → window start → partials. Nested maps: one key join per partial, no composite strings.
+  const groups = new Map<string, Map<number, PartialMoments[]>>()
   for (const p of partials) {
-    const g = `${seriesId(p.key)}\u0000${p.windowStartMs}`
-    const list = groups.get(g)
-    if (list === undefined) groups.set(g, [p])
+    const id = seriesId(p.key)
+    let windows = groups.get(id)
+    if (windows === undefined) {
+      windows = new Map()
+      groups.set(id, windows)
+    }
+    const list = windows.get(p.windowStartMs)
+    if (list === undefined) windows.set(p.windowStartMs, [p])
     else list.push(p)
   }
   const out: MergedState[] = []
-  for (const list of groups.values()) {
-    list.sort(comparePartials)
-    const first = list[0] as PartialMoments
-    let m = emptyMoments(first.moments.lag !== null)
-    for (const p of list) m = mergeMoments(m, p.moments)
-    out.push({
-      id: seriesId(first.key),
-      key: first.key,
-      windowStartMs: first.windowStartMs,
-      moments: m,
-      parts: list.length,
-    })
+  for (const id of [...groups.keys()].sort(compareIds)) {
+    const windows = groups.get(id) as Map<number, PartialMoments[]>
+    for (const start of [...windows.keys()].sort((a, b) => a - b)) {
+      const list = windows.get(start) as PartialMoments[]
+      if (list.length > 1) list.sort(comparePartials)
+      const first = list[0] as PartialMoments
+      let m = emptyMoments(first.moments.lag !== null)
+      for (const p of list) m = mergeMoments(m, p.moments)
+      out.push({ id, key: first.key, windowStartMs: start, moments: m, parts: list.length })
+    }
   }
-  out.sort((a, b) => (a.id < b.id ? -1 : a.id > b.id ? 1 : a.windowStartMs - b.windowStartMs))
   return out
+}
+
+/** Code-unit order of series ids (the order of every table and merge). */
+function compareIds(a: string, b: string): number {
+  return a < b ? -1 : a > b ? 1 : 0
 }

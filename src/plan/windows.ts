@@ -80,6 +80,44 @@ export function affectedWindows(
 }
 
 /**
+ * The distinct window starts of `affectedWindows(oldPartials, newPartials, baselineWindows, spec)`,
+ * ascending, without building one entry per (series, window): a run re-merges whole window families,
+ * so it only needs the starts. When nothing was replaced (`oldPartials` empty, every first run and
+ * every run that only adds files), each new partial's window is affected without any per-partial key.
+ */
+export function affectedWindowStarts(
+  oldPartials: readonly PartialMoments[],
+  newPartials: readonly PartialMoments[],
+  baselineWindows: number,
+  spec: WindowSpec,
+): number[] {
+  const direct = new Set<number>()
+  if (oldPartials.length === 0) {
+    for (const p of newPartials) direct.add(p.windowStartMs)
+  } else {
+    const before = new Map<string, PartialMoments>()
+    for (const p of oldPartials) before.set(partialId(p), p)
+    const seen = new Set<string>()
+    for (const q of newPartials) {
+      const id = partialId(q)
+      seen.add(id)
+      const p = before.get(id)
+      if (p === undefined || !sameMoments(p.moments, q.moments)) direct.add(q.windowStartMs)
+    }
+    for (const [id, p] of before) if (!seen.has(id)) direct.add(p.windowStartMs)
+  }
+  const out = new Set(direct)
+  for (const first of direct) {
+    let start = first
+    for (let i = 0; i < baselineWindows; i++) {
+      start = windowEndOf(spec, start)
+      out.add(start)
+    }
+  }
+  return [...out].sort((a, b) => a - b)
+}
+
+/**
  * Starts (epoch ms) of every window that overlaps `[fromMs, toMs)`, in order: the window holding
  * `fromMs` first, then each next window while it starts before `toMs` (`run --from/--to`). Empty
  * when `toMs ≤ fromMs`. The caller bounds the range; each window costs one step.

@@ -2,8 +2,9 @@ import { describe, expect, it } from 'vitest'
 import type { Moments } from '../../../src/kernel/moments.js'
 import { addRow, emptyMoments } from '../../../src/kernel/moments.js'
 import { parseWindow } from '../../../src/kernel/window.js'
-import { affectedWindows, sameMoments, windowStartsBetween } from '../../../src/plan/windows.js'
+import { affectedWindowStarts, affectedWindows, sameMoments, windowStartsBetween } from '../../../src/plan/windows.js'
 import type { PartialMoments } from '../../../src/types.js'
+import { mulberry32 } from '../../helpers/prng.js'
 
 const hourly = parseWindow('1h')
 const monthly = parseWindow('month', 'Europe/Berlin')
@@ -87,6 +88,33 @@ describe('affectedWindows', () => {
 
   it('adds no following windows when baselineWindows is 0', () => {
     expect(affectedWindows([], [p('/a', 'north', 0, moments([[0, 1]]))], 0, hourly)).toHaveLength(1)
+  })
+})
+
+describe('affectedWindowStarts', () => {
+  it('gives the distinct window starts of affectedWindows on random replacements', () => {
+    // Property test on invented partials: the fast path must list exactly the starts of the full one.
+    const rand = mulberry32(20261202)
+    const pick = <T>(xs: readonly T[]): T => xs[Math.floor(rand() * xs.length)] as T
+    for (let round = 0; round < 200; round++) {
+      // At most one partial per (file, series, window), as the readers produce.
+      const make = (share: number) =>
+        ['/a', '/b'].flatMap((file) =>
+          ['north', 'south'].flatMap((site) =>
+            [0, 1, 2, 5].flatMap((w) => (rand() < share ? [p(file, site, w * H, moments([[1, pick([1, 2])]]))] : [])),
+          ),
+        )
+      const old = round % 3 === 0 ? [] : make(0.3)
+      const now = make(0.3)
+      const k = Math.floor(rand() * 3)
+      const want = [...new Set(affectedWindows(old, now, k, hourly).map((w) => w.windowStartMs))].sort((a, b) => a - b)
+      expect(affectedWindowStarts(old, now, k, hourly)).toEqual(want)
+    }
+  })
+
+  it('lists the windows of new partials and the following k windows when nothing was replaced', () => {
+    const now = [p('/a', 'north', 10 * H, moments([[1, 2]])), p('/a', 'south', 10 * H, moments([[1, 2]]))]
+    expect(affectedWindowStarts([], now, 2, hourly)).toEqual([10 * H, 11 * H, 12 * H])
   })
 })
 
