@@ -21,7 +21,7 @@ import type { Logger } from '../log.js'
 import { flushOutbox, undeliveredError } from '../notify/flush.js'
 import { stageDigests } from '../notify/stage.js'
 import { type FilePlan, ledgerAfter, planFiles } from '../plan/files.js'
-import { affectedWindows, windowStartsBetween } from '../plan/windows.js'
+import { affectedWindowStarts, windowStartsBetween } from '../plan/windows.js'
 import { fingerprintFiles } from '../store/fingerprint.js'
 import { commitLedger, emptyLedger, type Ledger, readLedger } from '../store/ledger.js'
 import { acquireRunLock } from '../store/lock.js'
@@ -37,7 +37,7 @@ import { createStaging, discardStaging, publish, recoverStaging } from '../store
 import { partitionFileName } from '../tables/columns.js'
 import { listTableFiles } from '../tables/read.js'
 import { replacePartitions, replaceWindows } from '../tables/write.js'
-import { type PartialMoments, type SourceFile, seriesId } from '../types.js'
+import type { PartialMoments, SourceFile } from '../types.js'
 import { fitRows } from './fit-rows.js'
 import { momentsPlanOf, windowSpecOf } from './plan.js'
 import { readPartials } from './read.js'
@@ -157,12 +157,11 @@ async function runLocked(
     mark = now
   }
   lap('partials stored', { files: toRead.length })
-  const affected = affectedWindows(oldPartials, read.partials, k, window)
   // `ledger`, not `committed`: --full ignores the old latest timestamp too (its files may be gone).
   const maxTsMs = maxOf(ledger.maxTsMs, maxTimestampMs(read.partials, config))
   const watermarkMs =
     (config.detect.watermark === 'clock' ? startedAt : (maxTsMs ?? startedAt)) - config.detect.allowedLatenessMs
-  const starts = new Set<number>(affected.map((a) => a.windowStartMs))
+  const starts = new Set<number>(affectedWindowStarts(oldPartials, read.partials, k, window))
   if (options.full === true) for (const p of oldPartials) starts.add(p.windowStartMs)
   for (const s of closedSince(window, ledger.watermarkMs, watermarkMs, maxTsMs)) starts.add(s)
   if (options.fromMs !== undefined && options.toMs !== undefined) {
@@ -181,21 +180,26 @@ async function runLocked(
   }
 
   // Re-merge those windows from all current partials (never subtract: statistics.md §1.6).
-  const unchangedFiles = ledgerPartialsFiles(
-    root,
-    filePlan.unchanged.map((f) => ({ path: f.path, fingerprint: f.fingerprint ?? '' })),
-  )
   const stored =
-    readStarts.size === 0 ? [] : await readStoredPartials(unchangedFiles, { windowStarts: [...readStarts], connection })
+    readStarts.size === 0
+      ? []
+      : await readStoredPartials(
+          ledgerPartialsFiles(
+            root,
+            filePlan.unchanged.map((f) => ({ path: f.path, fingerprint: f.fingerprint ?? '' })),
+          ),
+          { windowStarts: [...readStarts], connection },
+        )
   const fresh = read.partials.filter((p) => readStarts.has(p.windowStartMs))
   const states: MergedState[] = mergePartials([...stored, ...fresh])
   lap('partials merged', { states: states.length })
   const current = states.filter((s) => starts.has(s.windowStartMs))
   const fits = fitRows(current, { config, window, watermarkMs, runId, computedAtMs: startedAt })
   lap('fitted', { fits: fits.length })
-  const targets = fits
-    .filter((f) => f.window_state === 'closed')
-    .map((f) => ({ id: seriesId(f.key), key: f.key, windowStartMs: f.window_start }))
+  // The closed windows with data, i.e. the fits marked closed (fitRows skips empty states).
+  const targets = current
+    .filter((s) => s.moments.n > 0 && windowEndOf(window, s.windowStartMs) <= watermarkMs)
+    .map((s) => ({ id: s.id, key: s.key, windowStartMs: s.windowStartMs }))
   const shifts = shiftRows(targets, states, { config, window, runId })
   lap('tested', { shifts: shifts.length })
   signal?.throwIfAborted()
@@ -290,7 +294,10 @@ async function runLocked(
   await commitLedger(root, runId, ledgerAfter(filePlan, runId), { maxTsMs, watermarkMs })
   lap('published and committed')
   await discardStaging(staging)
-  await gcPartials(root, { files: ledgerAfter(filePlan, runId) })
+  // Partials of replaced and deleted files go now; a run that replaced nothing has nothing to collect.
+  if (options.full === true || filePlan.changed.length > 0 || filePlan.deleted.length > 0) {
+    await gcPartials(root, { files: ledgerAfter(filePlan, runId) })
+  }
   log.info({ files: toRead.length, rows: rowsRead, fits: fits.length, shifts: shifts.length }, 'run committed')
 
   // Deliver what waits in the outbox (this run's digest and any left by earlier runs).
