@@ -7,6 +7,7 @@
  */
 import { type FileHandle, open } from 'node:fs/promises'
 import { basename } from 'node:path'
+import { setImmediate } from 'node:timers/promises'
 import { type Data, type DataType, type RecordBatch, RecordBatchReader, type Schema } from 'apache-arrow'
 import { DataError, NoInputError } from '../errors.js'
 import { accumulateRows, MomentSlots, slotMoments } from '../kernel/accumulate.js'
@@ -31,6 +32,7 @@ import {
   timeLayoutOf,
   toNumbers,
 } from './arrow-columns.js'
+import { hasFileMagic, type IpcBatch, IpcFileReader } from './arrow-ipc-file.js'
 import { registerArrowCodecs } from './codecs.js'
 
 /** Options of `readArrowPartials`. */
@@ -85,12 +87,11 @@ export async function readArrowPartials(
         context: { file: file.path },
       })
     }
-    reader = await openReader(handle, file.path)
-    const schema = reader.schema as Schema | null | undefined
-    if (schema === null || schema === undefined || schema.fields.length === 0) {
-      throw corrupt(file.path, 'no schema found')
+    if (await startsWithFileMagic(handle, file.path)) {
+      return { partials: await readFileFormat(handle.fd, size, file, plan, stats, options), stats }
     }
-    const acc = new FileAccumulator(file, plan, schema)
+    reader = await openStreamReader(handle, file.path)
+    const acc = new FileAccumulator(file, plan, schemaOf(reader.schema, file.path))
     for (;;) {
       let next: IteratorResult<RecordBatch>
       try {
@@ -101,7 +102,7 @@ export async function readArrowPartials(
       if (next.done === true) break
       options.signal?.throwIfAborted()
       const batch = next.value
-      stats.skipped += acc.add(batch)
+      stats.skipped += acc.add(batch.numRows, batch.data.children)
       stats.rows += batch.numRows
       options.onProgress?.(stats.rows)
     }
@@ -110,6 +111,54 @@ export async function readArrowPartials(
     if (reader !== null) await cancelQuietly(reader)
     if (handle !== null) await closeQuietly(handle)
   }
+}
+
+/** The event loop gets a turn after this much reading (ms), so abort signals and timers still run. */
+const yieldEveryMs = 20
+
+/**
+ * The file format through `IpcFileReader`: synchronous positioned reads into reused buffers, one
+ * batch at a time, with a turn of the event loop every `yieldEveryMs`.
+ */
+async function readFileFormat(
+  fd: number,
+  size: number,
+  file: SourceFile,
+  plan: MomentsPlan,
+  stats: ReadStats,
+  options: ArrowReadOptions,
+): Promise<PartialMoments[]> {
+  let ipc: IpcFileReader
+  try {
+    ipc = new IpcFileReader(fd, size)
+  } catch (err) {
+    throw corrupt(file.path, err)
+  }
+  const acc = new FileAccumulator(file, plan, schemaOf(ipc.schema, file.path))
+  let turn = performance.now()
+  for (;;) {
+    let batch: IpcBatch | null
+    try {
+      batch = ipc.next()
+    } catch (err) {
+      throw corrupt(file.path, err)
+    }
+    if (batch === null) break
+    stats.skipped += acc.add(batch.length, batch.columns)
+    stats.rows += batch.length
+    options.onProgress?.(stats.rows)
+    if (performance.now() - turn >= yieldEveryMs) {
+      await setImmediate()
+      turn = performance.now()
+    }
+    options.signal?.throwIfAborted()
+  }
+  return acc.finish()
+}
+
+function schemaOf(schema: Schema | null | undefined, path: string): Schema {
+  if (schema === null || schema === undefined || schema.fields.length === 0) throw corrupt(path, 'no schema found')
+  return schema
 }
 
 async function openFile(path: string): Promise<FileHandle> {
@@ -129,22 +178,23 @@ async function openFile(path: string): Promise<FileHandle> {
   }
 }
 
-/** "ARROW1": the first bytes of the IPC file format (the stream format has no magic). */
-const fileMagic = [0x41, 0x52, 0x52, 0x4f, 0x57, 0x31]
-
-/**
- * Opens the right reader: the file format through random access on the handle (it reads the
- * footer, then one batch at a time), the stream format through a buffered read stream (1 MiB
- * chunks; reading a stream through the handle costs several small reads per message).
- */
-async function openReader(handle: FileHandle, path: string): Promise<RecordBatchReader> {
+/** True when the file starts with the file-format magic (else it is read as the stream format). */
+async function startsWithFileMagic(handle: FileHandle, path: string): Promise<boolean> {
   try {
-    const head = new Uint8Array(fileMagic.length)
+    const head = new Uint8Array(8)
     const { bytesRead } = await handle.read(head, 0, head.length, 0)
-    const isFile = bytesRead === head.length && fileMagic.every((b, i) => head[i] === b)
-    const reader = isFile
-      ? await RecordBatchReader.from(handle)
-      : await RecordBatchReader.from(handle.createReadStream({ start: 0, highWaterMark: 1 << 20, autoClose: false }))
+    return hasFileMagic(head.subarray(0, bytesRead))
+  } catch (err) {
+    throw corrupt(path, err)
+  }
+}
+
+/** The stream format through a buffered read stream (1 MiB chunks). */
+async function openStreamReader(handle: FileHandle, path: string): Promise<RecordBatchReader> {
+  try {
+    const reader = await RecordBatchReader.from(
+      handle.createReadStream({ start: 0, highWaterMark: 1 << 20, autoClose: false }),
+    )
     await reader.open()
     return reader
   } catch (err) {
@@ -276,12 +326,11 @@ class FileAccumulator {
     this.varying = this.layout.keys.flatMap((k, i) => (k.kind === 'column' ? [i] : []))
   }
 
-  /** Adds one record batch; returns the rows skipped (no window, or rejected by validation). */
-  add(batch: RecordBatch): number {
-    const length = batch.numRows
+  /** Adds one record batch (`length` rows, one `Data` per schema field); returns the rows skipped. */
+  add(length: number, columns: readonly Data[]): number {
     if (length === 0) return 0
     const column = (i: number): Data => {
-      const d = batch.data.children[i]
+      const d = columns[i]
       if (d === undefined) throw corrupt(this.file.path, `column ${i} missing from a record batch`)
       return d
     }
