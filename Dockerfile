@@ -17,5 +17,5 @@ COPY schemas ./schemas
 COPY config ./config
 USER node
 # Exec form: signals reach node directly, so SIGTERM stops a run cleanly (exit 143).
-ENTRYPOINT ["node", "dist/cli/main.js"]
+ENTRYPOINT ["node", "dist/bundle/slopeshift.js"]
 CMD ["--help"]

@@ -13,7 +13,7 @@ export const projectRoot = path.resolve(path.dirname(fileURLToPath(import.meta.u
 /** Cache and results folder (git-ignored). */
 export const benchDir = path.join(projectRoot, '.bench')
 /** The built CLI. */
-export const cliPath = path.join(projectRoot, 'dist', 'cli', 'main.js')
+export const cliPath = path.join(projectRoot, 'dist', 'bundle', 'slopeshift.js')
 
 /** GNU time, when installed: gives the child's peak RSS without touching it. */
 export const gnuTime = '/usr/bin/time'

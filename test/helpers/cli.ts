@@ -1,5 +1,5 @@
 /**
- * Spawns the built CLI (`dist/cli/main.js`, or the file named by `SLOPESHIFT_CLI`) and collects what it did:
+ * Spawns the built CLI (the shipped bundle `dist/bundle/slopeshift.js`, or the file named by `SLOPESHIFT_CLI`) and collects what it did:
  * exit code, signal, stdout, stderr, the last JSON line of stderr (pino's final log line) and the `--json`
  * summary on stdout. Integration tests use it to check exit codes and messages end to end (style.md 4.3, 4.6).
  */
@@ -12,8 +12,8 @@ import type { RunSummary } from '../../src/pipeline/summary.js'
 /** Project root (two folders above this file). */
 export const projectRoot = path.resolve(path.dirname(fileURLToPath(import.meta.url)), '..', '..')
 
-/** The CLI entry the tests spawn: `SLOPESHIFT_CLI` when set, else the build output `dist/cli/main.js`. */
-export const cliPath = process.env.SLOPESHIFT_CLI ?? path.join(projectRoot, 'dist', 'cli', 'main.js')
+/** The CLI entry the tests spawn: `SLOPESHIFT_CLI` when set, else the shipped bundle `dist/bundle/slopeshift.js`. */
+export const cliPath = process.env.SLOPESHIFT_CLI ?? path.join(projectRoot, 'dist', 'bundle', 'slopeshift.js')
 
 /** True when the CLI has been built (`npm run build`); tests skip visibly otherwise. */
 export const hasBuiltCli = existsSync(cliPath)

@@ -1,3 +1,4 @@
+import { existsSync } from 'node:fs'
 import { readFile } from 'node:fs/promises'
 import path from 'node:path'
 import { fileURLToPath } from 'node:url'
@@ -37,7 +38,7 @@ export function demoCommand(deps: CliDeps): CommandModule<object, Args> {
         { dir: lake.dataDir, parquetRows: lake.parquetRows, arrowRows: lake.arrowRows },
         'demo lake written',
       )
-      const configFile = fileURLToPath(new URL('../../../config/demo.yaml', import.meta.url))
+      const configFile = packageFile(path.join('config', 'demo.yaml'))
       const raw = parseConfigText(await readFile(configFile, 'utf8'), configFile)
       const config = resolveConfig(raw, configFile, {
         overrides: {
@@ -71,5 +72,18 @@ export function demoCommand(deps: CliDeps): CommandModule<object, Args> {
       ]
       deps.stdout(`${lines.join('\n')}\n`)
     },
+  }
+}
+
+/**
+ * A file shipped with the package (`config/demo.yaml`), found from the nearest folder above this
+ * module that holds `package.json`: the same from `dist/cli/commands/` and from the bundle in `dist/`.
+ */
+function packageFile(relative: string): string {
+  const here = path.dirname(fileURLToPath(import.meta.url))
+  for (let dir = here; ; dir = path.dirname(dir)) {
+    if (existsSync(path.join(dir, 'package.json'))) return path.join(dir, relative)
+    if (path.dirname(dir) === dir)
+      throw new Error(`no package.json above ${here}: the slopeshift install is incomplete`)
   }
 }
