@@ -129,16 +129,35 @@ export function toNumbers(data: Data, scratch: Scratch, slot: number): Float64Ar
   ) {
     if (DataType.isFloat(data.type) && data.type.precision === Precision.HALF) {
       for (let i = 0; i < length; i++) out[i] = halfToNumber(values[i] as number)
+    } else if (values instanceof Float64Array) {
+      out.set(values.subarray(0, length))
     } else {
       for (let i = 0; i < length; i++) out[i] = values[i] as number
     }
   } else {
     throw new TypeError(`cannot read ${String(data.type)} values as numbers`)
   }
-  if (validity !== null) {
-    for (let i = 0; i < length; i++) if (isNull(validity, data.offset + i)) out[i] = Number.NaN
-  }
+  if (validity !== null) markNulls(validity, data.offset, length, out)
   return out
+}
+
+/**
+ * Sets `out[i]` to NaN where bit `bitOffset + i` of `validity` is clear. Byte-aligned bitmaps are
+ * scanned a byte (8 rows) at a time, skipping bytes without nulls.
+ */
+function markNulls(validity: Uint8Array, bitOffset: number, length: number, out: Float64Array): void {
+  let i = 0
+  if ((bitOffset & 7) === 0) {
+    const first = bitOffset >> 3
+    const whole = length >> 3
+    for (let j = 0; j < whole; j++) {
+      const byte = validity[first + j] as number
+      if (byte === 0xff) continue
+      for (let b = 0; b < 8; b++) if (((byte >> b) & 1) === 0) out[j * 8 + b] = Number.NaN
+    }
+    i = whole * 8
+  }
+  for (; i < length; i++) if (isNull(validity, bitOffset + i)) out[i] = Number.NaN
 }
 
 /** Decimal128/256 (two's complement, little-endian 32-bit words) → nearest double / 10^scale. */
@@ -262,7 +281,16 @@ export class KeyColumnReader {
     return id
   }
 
-  private remapOf(dictionary: Vector): Int32Array {
+  /** The value id of null. */
+  nullId(): number {
+    return this.ids.idOfNull()
+  }
+
+  /**
+   * Value ids of the entries of a dictionary (index → id), computed once per dictionary object.
+   * Readers compose it with their own per-value maps.
+   */
+  remapOf(dictionary: Vector): Int32Array {
     let remap = this.remaps.get(dictionary)
     if (remap === undefined) {
       remap = new Int32Array(dictionary.length)

@@ -8,9 +8,9 @@
 import { type FileHandle, open } from 'node:fs/promises'
 import { basename } from 'node:path'
 import { setImmediate } from 'node:timers/promises'
-import { type Data, type DataType, type RecordBatch, RecordBatchReader, type Schema } from 'apache-arrow'
+import { type Data, DataType, type RecordBatch, RecordBatchReader, type Schema, type Vector } from 'apache-arrow'
 import { DataError, NoInputError } from '../errors.js'
-import { accumulateRows, MomentSlots, slotMoments } from '../kernel/accumulate.js'
+import { accumulateIndexed, MomentSlots, slotClearlyValid, slotMoments } from '../kernel/accumulate.js'
 import { KeyValueIds } from '../kernel/key-intern.js'
 import { invalidMomentsReason } from '../kernel/moments.js'
 import { SlotIndex } from '../kernel/slot-index.js'
@@ -31,6 +31,7 @@ import {
   type TimeLayout,
   timeLayoutOf,
   toNumbers,
+  validityOf,
 } from './arrow-columns.js'
 import { hasFileMagic, type IpcBatch, IpcFileReader } from './arrow-ipc-file.js'
 import { registerArrowCodecs } from './codecs.js'
@@ -154,6 +155,10 @@ async function readFileFormat(
     options.signal?.throwIfAborted()
   }
   return acc.finish()
+}
+
+function isNullAt(bitmap: Uint8Array, bit: number): boolean {
+  return (((bitmap[bit >> 3] as number) >> (bit & 7)) & 1) === 0
 }
 
 function schemaOf(schema: Schema | null | undefined, path: string): Schema {
@@ -305,6 +310,8 @@ class FileAccumulator {
   private readonly varying: number[]
   /** Single varying key: value id → series id (−1 = not yet). */
   private seriesOfValue = new Int32Array(64).fill(-1)
+  /** Single varying dictionary key: per dictionary object, index → series id (−1 = not yet). */
+  private readonly seriesOfIndex = new WeakMap<Vector, Int32Array>()
   /** Several varying keys: per extra key column, (tuple id, value id) → tuple id (series id at the last). */
   private readonly tupleLevels: Map<number, number>[] = []
   private readonly seriesKeys: SeriesKey[] = []
@@ -340,11 +347,10 @@ class FileAccumulator {
     const window = s.int(1, length)
     const x = s.float(0, length)
     const unplaced = placeTimes(column(this.layout.x.index), this.layout.x.layout, this.cursor, s, window, x)
-    const slot = s.int(2, length)
-    this.index.assign(length, series, window, slot)
     const y = toNumbers(column(this.layout.y), s, 1)
     const weight = this.layout.weight === null ? null : toNumbers(column(this.layout.weight), s, 2)
-    const rejected = accumulateRows(this.slots, { length, slot, x, y, weight })
+    const rows = { length, series, window, x, y, weight }
+    const rejected = accumulateIndexed(this.slots, this.index, rows, s.int(2, length))
     return unplaced + rejected
   }
 
@@ -352,6 +358,10 @@ class FileAccumulator {
     if (this.varying.length === 0) {
       const id = this.seriesFor([])
       out.fill(id, 0, length)
+      return
+    }
+    if (this.varying.length === 1 && this.seriesOfDictionary(column, out, length)) {
+      this.index.reserveSeries(this.seriesKeys.length)
       return
     }
     const valueIds = this.varying.map((pos, j) => {
@@ -402,6 +412,62 @@ class FileAccumulator {
     this.index.reserveSeries(this.seriesKeys.length)
   }
 
+  /**
+   * Series ids straight from the indices of a single dictionary key column: per dictionary object,
+   * index → series id is filled on first sight of each index, so a batch costs one lookup per row.
+   * Returns false (nothing written) when the column is not a dictionary with number indices.
+   */
+  private seriesOfDictionary(column: (i: number) => Data, out: Int32Array, length: number): boolean {
+    const pos = this.varying[0] as number
+    const src = this.layout.keys[pos]
+    const reader = this.keyReaders[pos]
+    if (src?.kind !== 'column' || reader === null || reader === undefined) return false
+    const data = column(src.index)
+    const dictionary = data.dictionary
+    const indices: unknown = data.values
+    if (!DataType.isDictionary(data.type) || dictionary === undefined) return false
+    if (
+      !(
+        indices instanceof Int32Array ||
+        indices instanceof Uint32Array ||
+        indices instanceof Int16Array ||
+        indices instanceof Uint16Array ||
+        indices instanceof Int8Array ||
+        indices instanceof Uint8Array
+      )
+    ) {
+      return false
+    }
+    let map = this.seriesOfIndex.get(dictionary)
+    if (map === undefined) {
+      map = new Int32Array(dictionary.length).fill(-1)
+      this.seriesOfIndex.set(dictionary, map)
+    }
+    const validity = validityOf(data)
+    for (let i = 0; i < length; i++) {
+      if (validity !== null && isNullAt(validity, data.offset + i)) {
+        out[i] = this.seriesOfValueId(reader.nullId())
+        continue
+      }
+      const ix = indices[i] as number
+      let sid = map[ix]
+      if (sid === undefined)
+        throw corrupt(this.file.path, `dictionary index ${ix} beyond the dictionary's ${dictionary.length} entries`)
+      if (sid < 0) {
+        sid = this.seriesOfValueId(reader.remapOf(dictionary)[ix] as number)
+        map[ix] = sid
+      }
+      out[i] = sid
+    }
+    return true
+  }
+
+  /** Series id of a value id of the single varying key column, registered when new. */
+  private seriesOfValueId(v: number): number {
+    const sid = v < this.seriesOfValue.length ? (this.seriesOfValue[v] as number) : -1
+    return sid >= 0 ? sid : this.newSingleSeries(v)
+  }
+
   private tooManyValues(pos: number): DataError {
     const column = this.keyNames[this.varying[pos] as number] ?? `#${pos}`
     return new DataError(
@@ -440,27 +506,41 @@ class FileAccumulator {
   /** Partial moments of every (series, window), checked finite, sorted by series id then window start. */
   finish(): PartialMoments[] {
     const ids = this.seriesKeys.map((key) => seriesId(key))
-    const order = Array.from({ length: this.slots.size }, (_, k) => k)
-    const seriesOf = (k: number): number => this.index.seriesOfSlot[k] as number
-    const startOf = (k: number): number => this.cursor.windowStartMs[this.index.windowOfSlot[k] as number] as number
-    order.sort((a, b) => {
-      const ia = ids[seriesOf(a)] as string
-      const ib = ids[seriesOf(b)] as string
-      return ia < ib ? -1 : ia > ib ? 1 : startOf(a) - startOf(b)
+    const seriesRank = ranks(ids.length, (a, b) => {
+      const ia = ids[a] as string
+      const ib = ids[b] as string
+      return ia < ib ? -1 : ia > ib ? 1 : 0
     })
-    return order.map((k) => {
-      const key = this.seriesKeys[seriesOf(k)] as SeriesKey
-      const windowStartMs = startOf(k)
+    const starts = this.cursor.windowStartMs
+    const windowRank = ranks(starts.length, (a, b) => (starts[a] as number) - (starts[b] as number))
+    const order = this.index.slotOrder(seriesRank, windowRank)
+    const out: PartialMoments[] = new Array(order.length)
+    for (let i = 0; i < order.length; i++) {
+      const k = order[i] as number
+      const sid = this.index.seriesOfSlot[k] as number
+      const key = this.seriesKeys[sid] as SeriesKey
+      const windowStartMs = starts[this.index.windowOfSlot[k] as number] as number
       const moments = slotMoments(this.slots, k)
-      const reason = invalidMomentsReason(moments)
+      const reason = slotClearlyValid(this.slots, k) ? null : invalidMomentsReason(moments)
       if (reason !== null) {
-        const id = ids[seriesOf(k)] as string
+        const id = ids[sid] as string
         throw new DataError(
           `moments of series ${id} in window ${new Date(windowStartMs).toISOString()} from ${basename(this.file.path)} are not valid (${reason}); check the file for values beyond ±1e154`,
           { context: { file: this.file.path, key: id } },
         )
       }
-      return { file: this.file.path, key, windowStartMs, moments }
-    })
+      out[i] = { file: this.file.path, key, windowStartMs, moments }
+    }
+    return out
   }
+}
+
+/** rank[i] = position of item i when items 0 … count − 1 are sorted by `compare`. */
+function ranks(count: number, compare: (a: number, b: number) => number): Int32Array {
+  const order = Array.from({ length: count }, (_, i) => i).sort(compare)
+  const rank = new Int32Array(count)
+  order.forEach((item, r) => {
+    rank[item] = r
+  })
+  return rank
 }

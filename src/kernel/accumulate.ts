@@ -1,13 +1,14 @@
 /**
- * The accumulation hot loop: struct-of-arrays moments, one slot per (series, window), updated row
+ * The accumulation hot loop: moments in typed arrays, one slot per (series, window), updated row
  * by row with Welford steps (statistics.md §1.3) and, for ordered unweighted input, the lag-block
- * pair-stream step (§5.2). Readers turn a record batch into plain typed arrays (slot id, x, y,
- * weight) and call `accumulateRows`; at the end of a file `slotMoments` converts each slot to the
- * `Moments` object of `moments.ts`. The arithmetic is the same, operation for operation, as
+ * pair-stream step (§5.2). Readers turn a record batch into plain typed arrays (slot id, or series
+ * and window ids, x, y, weight) and call `accumulateRows` or `accumulateIndexed`; at the end of a
+ * file `slotMoments` converts each slot to the `Moments` object of `moments.ts`. The arithmetic is the same, operation for operation, as
  * `addRow`/`addLagRow`, so results are bit-identical to feeding the rows through those.
  * Memory grows with the number of slots, never with rows. Pure: no I/O.
  */
-import { emptyLag, type Moments } from './moments.js'
+import { emptyLag, type LagBlock, type Moments } from './moments.js'
+import type { SlotIndex } from './slot-index.js'
 
 /** Which optional blocks a slot store keeps. */
 export interface SlotOptions {
@@ -31,96 +32,104 @@ export interface RowColumns {
   readonly weight: Float64Array | null
 }
 
-const initialCapacity = 64
+const initialCapacity = 1024
+
+/** Doubles per slot in `MomentSlots.core` (one 64-byte cache line), and the field offsets. */
+export const coreStride = 8
+const N = 0
+const XM = 1
+const YM = 2
+const SXX = 3
+const SYY = 4
+const SXY = 5
+const XMIN = 6
+const XMAX = 7
+/** Doubles per slot in `MomentSlots.lag` (13 used, padded to two cache lines), and the offsets. */
+export const lagStride = 16
+const PAIRS = 0
+const CXM = 1
+const CYM = 2
+const PXM = 3
+const PYM = 4
+const CYY1 = 5
+const CYX1 = 6
+const CXY1 = 7
+const CXX1 = 8
+const FX = 9
+const FY = 10
+const LX = 11
+const LY = 12
 
 /**
- * Struct-of-arrays moments of many (series, window) slots. Arrays double when full, so adding a
- * slot is amortised O(1). Field meanings are those of `Moments` and `LagBlock` (statistics.md §1.1,
- * §5.2).
+ * Moments of many (series, window) slots. Field meanings are those of `Moments` and `LagBlock`
+ * (statistics.md §1.1, §5.2). The fields one row updates sit together (array of structs: `core`
+ * holds n, x̄, ȳ, Sxx, Syy, Sxy, x min, x max per slot in one cache line; `lag` the lag block),
+ * because rows of a batch visit slots in no particular order and struct-of-arrays costs one
+ * cache line per field. Arrays double when full, so adding a slot is amortised O(1).
  */
 export class MomentSlots {
   readonly weighted: boolean
   readonly trackLag: boolean
   /** Slots in use. */
   size = 0
-  n = new Float64Array(initialCapacity)
-  wSum = new Float64Array(initialCapacity)
-  xMean = new Float64Array(initialCapacity)
-  yMean = new Float64Array(initialCapacity)
-  sxx = new Float64Array(initialCapacity)
-  syy = new Float64Array(initialCapacity)
-  sxy = new Float64Array(initialCapacity)
-  xMin = new Float64Array(initialCapacity).fill(Number.POSITIVE_INFINITY)
-  xMax = new Float64Array(initialCapacity).fill(Number.NEGATIVE_INFINITY)
-  skipped = new Float64Array(initialCapacity)
-  pairs = new Float64Array(0)
-  curXMean = new Float64Array(0)
-  curYMean = new Float64Array(0)
-  prevXMean = new Float64Array(0)
-  prevYMean = new Float64Array(0)
-  cYy1 = new Float64Array(0)
-  cYx1 = new Float64Array(0)
-  cXy1 = new Float64Array(0)
-  cXx1 = new Float64Array(0)
-  firstX = new Float64Array(0)
-  firstY = new Float64Array(0)
-  lastX = new Float64Array(0)
-  lastY = new Float64Array(0)
-  inOrder = new Uint8Array(0)
+  /** Per slot `coreStride` doubles: n, xMean, yMean, sxx, syy, sxy, xMin, xMax. */
+  core: Float64Array = new Float64Array(0)
+  /** Σw per slot (weighted stores only; unweighted Σw is n). */
+  wSum: Float64Array = new Float64Array(0)
+  /** Rows rejected by validation, per slot. */
+  skipped: Float64Array = new Float64Array(0)
+  /** Per slot `lagStride` doubles: pairs, cur/prev means, the four cross sums, first/last x and y. */
+  lag: Float64Array = new Float64Array(0)
+  /** 1 while the slot's rows arrived in time order. */
+  inOrder: Uint8Array = new Uint8Array(0)
+  private capacity = 0
 
   constructor(options: SlotOptions) {
     this.weighted = options.weighted
     this.trackLag = options.trackLag && !options.weighted
-    if (this.trackLag) this.allocateLag(initialCapacity)
+    this.grow(initialCapacity)
   }
 
   /** Adds an empty slot and returns its id (0, 1, 2, …). */
   addSlot(): number {
-    if (this.size === this.n.length) this.grow()
+    if (this.size === this.capacity) this.grow(this.capacity * 2)
     const id = this.size
     this.size += 1
     return id
   }
 
-  private allocateLag(capacity: number): void {
-    const old = this.pairs.length
-    this.pairs = grown(this.pairs, capacity, 0)
-    this.curXMean = grown(this.curXMean, capacity, 0)
-    this.curYMean = grown(this.curYMean, capacity, 0)
-    this.prevXMean = grown(this.prevXMean, capacity, 0)
-    this.prevYMean = grown(this.prevYMean, capacity, 0)
-    this.cYy1 = grown(this.cYy1, capacity, 0)
-    this.cYx1 = grown(this.cYx1, capacity, 0)
-    this.cXy1 = grown(this.cXy1, capacity, 0)
-    this.cXx1 = grown(this.cXx1, capacity, 0)
-    this.firstX = grown(this.firstX, capacity, Number.NaN)
-    this.firstY = grown(this.firstY, capacity, Number.NaN)
-    this.lastX = grown(this.lastX, capacity, Number.NaN)
-    this.lastY = grown(this.lastY, capacity, Number.NaN)
-    const inOrder = new Uint8Array(capacity).fill(1)
-    inOrder.set(this.inOrder.subarray(0, old))
-    this.inOrder = inOrder
-  }
-
-  private grow(): void {
-    const capacity = this.n.length * 2
-    this.n = grown(this.n, capacity, 0)
-    this.wSum = grown(this.wSum, capacity, 0)
-    this.xMean = grown(this.xMean, capacity, 0)
-    this.yMean = grown(this.yMean, capacity, 0)
-    this.sxx = grown(this.sxx, capacity, 0)
-    this.syy = grown(this.syy, capacity, 0)
-    this.sxy = grown(this.sxy, capacity, 0)
-    this.xMin = grown(this.xMin, capacity, Number.POSITIVE_INFINITY)
-    this.xMax = grown(this.xMax, capacity, Number.NEGATIVE_INFINITY)
-    this.skipped = grown(this.skipped, capacity, 0)
-    if (this.trackLag) this.allocateLag(capacity)
+  private grow(capacity: number): void {
+    const old = this.capacity
+    const core = new Float64Array(capacity * coreStride)
+    core.set(this.core)
+    for (let k = old; k < capacity; k++) {
+      core[k * coreStride + XMIN] = Number.POSITIVE_INFINITY
+      core[k * coreStride + XMAX] = Number.NEGATIVE_INFINITY
+    }
+    this.core = core
+    this.skipped = grown(this.skipped, capacity)
+    if (this.weighted) this.wSum = grown(this.wSum, capacity)
+    if (this.trackLag) {
+      const lag = new Float64Array(capacity * lagStride)
+      lag.set(this.lag)
+      for (let k = old; k < capacity; k++) {
+        const b = k * lagStride
+        lag[b + FX] = Number.NaN
+        lag[b + FY] = Number.NaN
+        lag[b + LX] = Number.NaN
+        lag[b + LY] = Number.NaN
+      }
+      this.lag = lag
+      const inOrder = new Uint8Array(capacity).fill(1)
+      inOrder.set(this.inOrder)
+      this.inOrder = inOrder
+    }
+    this.capacity = capacity
   }
 }
 
-function grown(a: Float64Array, capacity: number, fill: number): Float64Array<ArrayBuffer> {
+function grown(a: Float64Array, capacity: number): Float64Array {
   const b = new Float64Array(capacity)
-  if (fill !== 0) b.fill(fill, a.length)
   b.set(a)
   return b
 }
@@ -137,42 +146,222 @@ export function accumulateRows(slots: MomentSlots, rows: RowColumns): number {
     if (rows.weight === null) throw new TypeError('weighted slots need a weight column')
     return accumulateWeighted(slots, rows.length, rows.slot, rows.x, rows.y, rows.weight)
   }
-  if (slots.trackLag) return accumulateLagged(slots, rows.length, rows.slot, rows.x, rows.y)
-  return accumulatePlain(slots, rows.length, rows.slot, rows.x, rows.y)
+  let bad = 0
+  for (let i = 0; i < rows.length; i++) {
+    const k = rows.slot[i] as number
+    if (k < 0) continue
+    if (
+      !(slots.trackLag
+        ? lagStep(slots, k, rows.x[i] as number, rows.y[i] as number)
+        : plainStep(slots, k, rows.x[i] as number, rows.y[i] as number))
+    )
+      bad++
+  }
+  return bad
 }
 
-/** Unweighted Welford step, statistics.md §1.3 (same operations as `addRow` with w = 1). */
-function accumulatePlain(s: MomentSlots, len: number, slot: Int32Array, x: Float64Array, y: Float64Array): number {
-  const { n, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped } = s
+/** Rows of one batch addressed by (series id, window id), as `accumulateIndexed` consumes them. */
+export interface IndexedRows {
+  readonly length: number
+  /** Series id per row (ids below the count passed to `SlotIndex.reserveSeries`). */
+  readonly series: Int32Array
+  /** Window id per row; negative = the row is in no window (already counted by the caller). */
+  readonly window: Int32Array
+  readonly x: Float64Array
+  readonly y: Float64Array
+  readonly weight: Float64Array | null
+}
+
+/**
+ * Same as `SlotIndex.assign` followed by `accumulateRows`, in one pass over the rows: the slot of
+ * each row is found from its series' last window (statistics.md §1.3 steps, §5.2 with the lag
+ * block). `slotScratch` receives slot ids for the weighted path, which keeps two passes.
+ */
+export function accumulateIndexed(
+  slots: MomentSlots,
+  index: SlotIndex,
+  rows: IndexedRows,
+  slotScratch: Int32Array,
+): number {
+  if (slots.weighted) {
+    index.assign(rows.length, rows.series, rows.window, slotScratch)
+    return accumulateRows(slots, { length: rows.length, slot: slotScratch, x: rows.x, y: rows.y, weight: rows.weight })
+  }
+  return slots.trackLag ? indexedLagged(slots, index, rows) : indexedPlain(slots, index, rows)
+}
+
+/** One unweighted Welford step (statistics.md §1.3, `addRow` with w = 1); false when the row is skipped. */
+function plainStep(s: MomentSlots, k: number, xi: number, yi: number): boolean {
+  // v − v is 0 for finite v and NaN for NaN and ±Inf (§1.8)
+  if (xi - xi !== 0 || yi - yi !== 0) {
+    s.skipped[k] = (s.skipped[k] as number) + 1
+    return false
+  }
+  const st = s.core
+  const b = k * coreStride
+  const c = (st[b + N] as number) + 1
+  st[b + N] = c
+  const f = 1 / c
+  const ox = st[b + XM] as number
+  const oy = st[b + YM] as number
+  const dx = xi - ox
+  const dy = yi - oy
+  const mx = ox + dx * f
+  const my = oy + dy * f
+  st[b + XM] = mx
+  st[b + YM] = my
+  const ey = yi - my
+  st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
+  st[b + SYY] = (st[b + SYY] as number) + dy * ey
+  st[b + SXY] = (st[b + SXY] as number) + dx * ey
+  if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+  if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+  return true
+}
+
+/** Unweighted Welford step plus the lag-block pair step of statistics.md §5.2 (as `addLagRow`). */
+function lagStep(s: MomentSlots, k: number, xi: number, yi: number): boolean {
+  if (!plainStep(s, k, xi, yi)) return false
+  pairStep(s.lag, s.inOrder, k, s.core[k * coreStride + N] as number, xi, yi)
+  return true
+}
+
+/** The §5.2 pair step for slot `k` whose row count is now `c` (first row: start the stream). */
+function pairStep(g: Float64Array, inOrder: Uint8Array, k: number, c: number, xi: number, yi: number): void {
+  const b = k * lagStride
+  if (c === 1) {
+    g[b + FX] = xi
+    g[b + FY] = yi
+    g[b + LX] = xi
+    g[b + LY] = yi
+    return
+  }
+  const px = g[b + LX] as number
+  const py = g[b + LY] as number
+  if (xi < px) inOrder[k] = 0
+  const p = (g[b + PAIRS] as number) + 1
+  g[b + PAIRS] = p
+  const dPx = px - (g[b + PXM] as number)
+  const dPy = py - (g[b + PYM] as number)
+  const dCx = xi - (g[b + CXM] as number)
+  const dCy = yi - (g[b + CYM] as number)
+  const pmx = (g[b + PXM] as number) + dPx / p
+  const pmy = (g[b + PYM] as number) + dPy / p
+  g[b + PXM] = pmx
+  g[b + PYM] = pmy
+  g[b + CXM] = (g[b + CXM] as number) + dCx / p
+  g[b + CYM] = (g[b + CYM] as number) + dCy / p
+  g[b + CYY1] = (g[b + CYY1] as number) + dCy * (py - pmy)
+  g[b + CYX1] = (g[b + CYX1] as number) + dCy * (px - pmx)
+  g[b + CXY1] = (g[b + CXY1] as number) + dCx * (py - pmy)
+  g[b + CXX1] = (g[b + CXX1] as number) + dCx * (px - pmx)
+  g[b + LX] = xi
+  g[b + LY] = yi
+}
+
+/** `accumulateIndexed` without weights or lag block: the hot loop of the Arrow reader. */
+function indexedPlain(s: MomentSlots, index: SlotIndex, rows: IndexedRows): number {
+  const { length, series, window, x, y } = rows
+  let lastWindow = index.lastWindowBySeries
+  let lastSlot = index.lastSlotBySeries
+  let st = s.core
+  let skipped = s.skipped
   let bad = 0
-  for (let i = 0; i < len; i++) {
-    const k = slot[i] as number
-    if (k < 0) continue
+  for (let i = 0; i < length; i++) {
+    const w = window[i] as number
+    if (w < 0) continue
+    const sid = series[i] as number
+    let k: number
+    if (lastWindow[sid] === w) k = lastSlot[sid] as number
+    else {
+      k = index.slotOf(sid, w)
+      // a new slot may have grown the arrays
+      st = s.core
+      skipped = s.skipped
+      lastWindow = index.lastWindowBySeries
+      lastSlot = index.lastSlotBySeries
+    }
     const xi = x[i] as number
     const yi = y[i] as number
-    // v − v is 0 for finite v and NaN for NaN and ±Inf (§1.8)
     if (xi - xi !== 0 || yi - yi !== 0) {
       skipped[k] = (skipped[k] as number) + 1
       bad++
       continue
     }
-    const c = (n[k] as number) + 1
-    n[k] = c
+    const b = k * coreStride
+    const c = (st[b] as number) + 1
+    st[b] = c
     const f = 1 / c
-    const ox = xMean[k] as number
-    const oy = yMean[k] as number
+    const ox = st[b + XM] as number
+    const oy = st[b + YM] as number
     const dx = xi - ox
     const dy = yi - oy
     const mx = ox + dx * f
     const my = oy + dy * f
-    xMean[k] = mx
-    yMean[k] = my
+    st[b + XM] = mx
+    st[b + YM] = my
     const ey = yi - my
-    sxx[k] = (sxx[k] as number) + dx * (xi - mx)
-    syy[k] = (syy[k] as number) + dy * ey
-    sxy[k] = (sxy[k] as number) + dx * ey
-    if (xi < (xMin[k] as number)) xMin[k] = xi
-    if (xi > (xMax[k] as number)) xMax[k] = xi
+    st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
+    st[b + SYY] = (st[b + SYY] as number) + dy * ey
+    st[b + SXY] = (st[b + SXY] as number) + dx * ey
+    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+  }
+  return bad
+}
+
+/** `accumulateIndexed` with the lag block. */
+function indexedLagged(s: MomentSlots, index: SlotIndex, rows: IndexedRows): number {
+  const { length, series, window, x, y } = rows
+  let lastWindow = index.lastWindowBySeries
+  let lastSlot = index.lastSlotBySeries
+  let st = s.core
+  let g = s.lag
+  let inOrder = s.inOrder
+  let skipped = s.skipped
+  let bad = 0
+  for (let i = 0; i < length; i++) {
+    const w = window[i] as number
+    if (w < 0) continue
+    const sid = series[i] as number
+    let k: number
+    if (lastWindow[sid] === w) k = lastSlot[sid] as number
+    else {
+      k = index.slotOf(sid, w)
+      // a new slot may have grown the arrays
+      st = s.core
+      skipped = s.skipped
+      lastWindow = index.lastWindowBySeries
+      lastSlot = index.lastSlotBySeries
+      g = s.lag
+      inOrder = s.inOrder
+    }
+    const xi = x[i] as number
+    const yi = y[i] as number
+    if (xi - xi !== 0 || yi - yi !== 0) {
+      skipped[k] = (skipped[k] as number) + 1
+      bad++
+      continue
+    }
+    const b = k * coreStride
+    const c = (st[b] as number) + 1
+    st[b] = c
+    const f = 1 / c
+    const ox = st[b + XM] as number
+    const oy = st[b + YM] as number
+    const dx = xi - ox
+    const dy = yi - oy
+    const mx = ox + dx * f
+    const my = oy + dy * f
+    st[b + XM] = mx
+    st[b + YM] = my
+    const ey = yi - my
+    st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
+    st[b + SYY] = (st[b + SYY] as number) + dy * ey
+    st[b + SXY] = (st[b + SXY] as number) + dx * ey
+    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    pairStep(g, inOrder, k, c, xi, yi)
   }
   return bad
 }
@@ -186,7 +375,7 @@ function accumulateWeighted(
   y: Float64Array,
   weight: Float64Array,
 ): number {
-  const { n, wSum, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped } = s
+  const { core: st, wSum, skipped } = s
   let bad = 0
   for (let i = 0; i < len; i++) {
     const k = slot[i] as number
@@ -199,85 +388,53 @@ function accumulateWeighted(
       bad++
       continue
     }
-    n[k] = (n[k] as number) + 1
+    const b = k * coreStride
+    st[b + N] = (st[b + N] as number) + 1
     const ws = (wSum[k] as number) + w
     wSum[k] = ws
     const f = w / ws
-    const dx = xi - (xMean[k] as number)
-    const dy = yi - (yMean[k] as number)
-    const mx = (xMean[k] as number) + dx * f
-    const my = (yMean[k] as number) + dy * f
-    xMean[k] = mx
-    yMean[k] = my
-    sxx[k] = (sxx[k] as number) + w * dx * (xi - mx)
-    syy[k] = (syy[k] as number) + w * dy * (yi - my)
-    sxy[k] = (sxy[k] as number) + w * dx * (yi - my)
-    if (xi < (xMin[k] as number)) xMin[k] = xi
-    if (xi > (xMax[k] as number)) xMax[k] = xi
+    const dx = xi - (st[b + XM] as number)
+    const dy = yi - (st[b + YM] as number)
+    const mx = (st[b + XM] as number) + dx * f
+    const my = (st[b + YM] as number) + dy * f
+    st[b + XM] = mx
+    st[b + YM] = my
+    st[b + SXX] = (st[b + SXX] as number) + w * dx * (xi - mx)
+    st[b + SYY] = (st[b + SYY] as number) + w * dy * (yi - my)
+    st[b + SXY] = (st[b + SXY] as number) + w * dx * (yi - my)
+    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
   }
   return bad
 }
 
-/** Unweighted Welford step plus the lag-block pair step of statistics.md §5.2 (as `addLagRow`). */
-function accumulateLagged(s: MomentSlots, len: number, slot: Int32Array, x: Float64Array, y: Float64Array): number {
-  const { n, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped } = s
-  const { pairs, curXMean, curYMean, prevXMean, prevYMean, cYy1, cYx1, cXy1, cXx1 } = s
-  const { firstX, firstY, lastX, lastY, inOrder } = s
-  let bad = 0
-  for (let i = 0; i < len; i++) {
-    const k = slot[i] as number
-    if (k < 0) continue
-    const xi = x[i] as number
-    const yi = y[i] as number
-    if (xi - xi !== 0 || yi - yi !== 0) {
-      skipped[k] = (skipped[k] as number) + 1
-      bad++
-      continue
-    }
-    const c = (n[k] as number) + 1
-    n[k] = c
-    const f = 1 / c
-    const dx = xi - (xMean[k] as number)
-    const dy = yi - (yMean[k] as number)
-    const mx = (xMean[k] as number) + dx * f
-    const my = (yMean[k] as number) + dy * f
-    xMean[k] = mx
-    yMean[k] = my
-    sxx[k] = (sxx[k] as number) + dx * (xi - mx)
-    syy[k] = (syy[k] as number) + dy * (yi - my)
-    sxy[k] = (sxy[k] as number) + dx * (yi - my)
-    if (xi < (xMin[k] as number)) xMin[k] = xi
-    if (xi > (xMax[k] as number)) xMax[k] = xi
-    if (c === 1) {
-      firstX[k] = xi
-      firstY[k] = yi
-      lastX[k] = xi
-      lastY[k] = yi
-      continue
-    }
-    const px = lastX[k] as number
-    const py = lastY[k] as number
-    if (xi < px) inOrder[k] = 0
-    const p = (pairs[k] as number) + 1
-    pairs[k] = p
-    const dPx = px - (prevXMean[k] as number)
-    const dPy = py - (prevYMean[k] as number)
-    const dCx = xi - (curXMean[k] as number)
-    const dCy = yi - (curYMean[k] as number)
-    const pmx = (prevXMean[k] as number) + dPx / p
-    const pmy = (prevYMean[k] as number) + dPy / p
-    prevXMean[k] = pmx
-    prevYMean[k] = pmy
-    curXMean[k] = (curXMean[k] as number) + dCx / p
-    curYMean[k] = (curYMean[k] as number) + dCy / p
-    cYy1[k] = (cYy1[k] as number) + dCy * (py - pmy)
-    cYx1[k] = (cYx1[k] as number) + dCy * (px - pmx)
-    cXy1[k] = (cXy1[k] as number) + dCx * (py - pmy)
-    cXx1[k] = (cXx1[k] as number) + dCx * (px - pmx)
-    lastX[k] = xi
-    lastY[k] = yi
-  }
-  return bad
+/**
+ * True when slot `k` certainly passes `invalidMomentsReason` (statistics.md §1.4): no rows, or all
+ * fields finite, Sxx ≥ 0, Syy ≥ 0 and Sxy² ≤ Sxx·Syy without slack. A false answer is not a
+ * verdict: callers then ask `invalidMomentsReason` on the `Moments` object, which stays the rule.
+ * Reading the typed arrays avoids building a field list per slot.
+ */
+export function slotClearlyValid(slots: MomentSlots, k: number): boolean {
+  const st = slots.core
+  const b = k * coreStride
+  const n = st[b + N] as number
+  if (n === 0) return true
+  const sxx = st[b + SXX] as number
+  const syy = st[b + SYY] as number
+  const sxy = st[b + SXY] as number
+  const sum =
+    n +
+    (st[b + XM] as number) +
+    (st[b + YM] as number) +
+    sxx +
+    syy +
+    sxy +
+    (st[b + XMIN] as number) +
+    (st[b + XMAX] as number) +
+    (slots.skipped[k] as number) +
+    (slots.weighted ? (slots.wSum[k] as number) : 0)
+  // a sum of finite values can overflow to ±Inf, which only sends the slot to the full check
+  return sum - sum === 0 && sxx >= 0 && syy >= 0 && sxy * sxy <= sxx * syy
 }
 
 /**
@@ -287,41 +444,43 @@ function accumulateLagged(s: MomentSlots, len: number, slot: Int32Array, x: Floa
  */
 export function slotMoments(slots: MomentSlots, k: number): Moments {
   if (k < 0 || k >= slots.size) throw new RangeError(`slot ${k} is not in use (size ${slots.size})`)
-  const n = slots.n[k] as number
+  const st = slots.core
+  const b = k * coreStride
+  const n = st[b + N] as number
   const m: Moments = {
     n,
     // unweighted loops do not store Σw: it equals n
     wSum: slots.weighted ? (slots.wSum[k] as number) : n,
-    xMean: slots.xMean[k] as number,
-    yMean: slots.yMean[k] as number,
-    sxx: slots.sxx[k] as number,
-    syy: slots.syy[k] as number,
-    sxy: slots.sxy[k] as number,
-    xMin: slots.xMin[k] as number,
-    xMax: slots.xMax[k] as number,
+    xMean: st[b + XM] as number,
+    yMean: st[b + YM] as number,
+    sxx: st[b + SXX] as number,
+    syy: st[b + SYY] as number,
+    sxy: st[b + SXY] as number,
+    xMin: st[b + XMIN] as number,
+    xMax: st[b + XMAX] as number,
     skipped: slots.skipped[k] as number,
-    lag: null,
-  }
-  if (slots.trackLag) {
-    m.lag =
-      n === 0
-        ? emptyLag()
-        : {
-            pairs: slots.pairs[k] as number,
-            curXMean: slots.curXMean[k] as number,
-            curYMean: slots.curYMean[k] as number,
-            prevXMean: slots.prevXMean[k] as number,
-            prevYMean: slots.prevYMean[k] as number,
-            cYy1: slots.cYy1[k] as number,
-            cYx1: slots.cYx1[k] as number,
-            cXy1: slots.cXy1[k] as number,
-            cXx1: slots.cXx1[k] as number,
-            firstX: slots.firstX[k] as number,
-            firstY: slots.firstY[k] as number,
-            lastX: slots.lastX[k] as number,
-            lastY: slots.lastY[k] as number,
-            inOrder: slots.inOrder[k] === 1,
-          }
+    lag: slots.trackLag ? (n === 0 ? emptyLag() : slotLag(slots, k)) : null,
   }
   return m
+}
+
+function slotLag(slots: MomentSlots, k: number): LagBlock {
+  const g = slots.lag
+  const b = k * lagStride
+  return {
+    pairs: g[b + PAIRS] as number,
+    curXMean: g[b + CXM] as number,
+    curYMean: g[b + CYM] as number,
+    prevXMean: g[b + PXM] as number,
+    prevYMean: g[b + PYM] as number,
+    cYy1: g[b + CYY1] as number,
+    cYx1: g[b + CYX1] as number,
+    cXy1: g[b + CXY1] as number,
+    cXx1: g[b + CXX1] as number,
+    firstX: g[b + FX] as number,
+    firstY: g[b + FY] as number,
+    lastX: g[b + LX] as number,
+    lastY: g[b + LY] as number,
+    inOrder: slots.inOrder[k] === 1,
+  }
 }

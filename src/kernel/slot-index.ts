@@ -14,8 +14,10 @@ export const maxWindowsPerFile = 2 ** 21
 export class SlotIndex {
   private readonly slots: MomentSlots
   private readonly byPair = new Map<number, number>()
-  private lastWindow = new Int32Array(64).fill(-1)
-  private lastSlot = new Int32Array(64).fill(-1)
+  /** Per series id: the window id of its last row (−1 = none); read by the fused hot loops. */
+  lastWindowBySeries = new Int32Array(64).fill(-1)
+  /** Per series id: the slot of its last row. */
+  lastSlotBySeries = new Int32Array(64).fill(-1)
   /** Series id of each slot. */
   seriesOfSlot = new Int32Array(64)
   /** Window id of each slot. */
@@ -32,8 +34,8 @@ export class SlotIndex {
 
   /** The slot of (series, window), created when new. Ids are non-negative integers. */
   slotOf(series: number, window: number): number {
-    if (series >= this.lastWindow.length) this.growSeries(series + 1)
-    if (this.lastWindow[series] === window) return this.lastSlot[series] as number
+    if (series >= this.lastWindowBySeries.length) this.growSeries(series + 1)
+    if (this.lastWindowBySeries[series] === window) return this.lastSlotBySeries[series] as number
     if (window >= maxWindowsPerFile) throw new RangeError(`more than ${maxWindowsPerFile} windows in one file`)
     const pair = series * maxWindowsPerFile + window
     let k = this.byPair.get(pair)
@@ -47,8 +49,8 @@ export class SlotIndex {
       this.seriesOfSlot[k] = series
       this.windowOfSlot[k] = window
     }
-    this.lastWindow[series] = window
-    this.lastSlot[series] = k
+    this.lastWindowBySeries[series] = window
+    this.lastSlotBySeries[series] = k
     return k
   }
 
@@ -64,20 +66,62 @@ export class SlotIndex {
         continue
       }
       const s = series[i] as number
-      out[i] = this.lastWindow[s] === w ? (this.lastSlot[s] as number) : this.slotOf(s, w)
+      out[i] = this.lastWindowBySeries[s] === w ? (this.lastSlotBySeries[s] as number) : this.slotOf(s, w)
     }
+  }
+
+  /**
+   * All slot ids ordered by (`seriesRank[series]`, `windowRank[window]`): a counting sort on the
+   * series rank, then an insertion sort on the window rank inside each series. Slots of
+   * time-ordered input are created in window order, so the second pass is then linear.
+   */
+  slotOrder(seriesRank: Int32Array, windowRank: Int32Array): Int32Array {
+    const size = this.slots.size
+    let buckets = 0
+    for (let k = 0; k < size; k++)
+      buckets = Math.max(buckets, (seriesRank[this.seriesOfSlot[k] as number] as number) + 1)
+    const start = new Int32Array(buckets + 1)
+    for (let k = 0; k < size; k++) {
+      const r = (seriesRank[this.seriesOfSlot[k] as number] as number) + 1
+      start[r] = (start[r] as number) + 1
+    }
+    for (let r = 0; r < buckets; r++) start[r + 1] = (start[r + 1] as number) + (start[r] as number)
+    const fill = start.slice(0, buckets)
+    const order = new Int32Array(size)
+    for (let k = 0; k < size; k++) {
+      const r = seriesRank[this.seriesOfSlot[k] as number] as number
+      order[fill[r] as number] = k
+      fill[r] = (fill[r] as number) + 1
+    }
+    for (let r = 0; r < buckets; r++) {
+      const end = start[r + 1] as number
+      for (let i = (start[r] as number) + 1; i < end; i++) {
+        const k = order[i] as number
+        const key = windowRank[this.windowOfSlot[k] as number] as number
+        let j = i - 1
+        while (
+          j >= (start[r] as number) &&
+          (windowRank[this.windowOfSlot[order[j] as number] as number] as number) > key
+        ) {
+          order[j + 1] = order[j] as number
+          j--
+        }
+        order[j + 1] = k
+      }
+    }
+    return order
   }
 
   /** Makes room for series ids below `count` (call before `assign` with new series ids). */
   reserveSeries(count: number): void {
-    if (count > this.lastWindow.length) this.growSeries(count)
+    if (count > this.lastWindowBySeries.length) this.growSeries(count)
   }
 
   private growSeries(count: number): void {
-    let capacity = this.lastWindow.length
+    let capacity = this.lastWindowBySeries.length
     while (capacity < count) capacity *= 2
-    this.lastWindow = grownInt(this.lastWindow, capacity, -1)
-    this.lastSlot = grownInt(this.lastSlot, capacity, -1)
+    this.lastWindowBySeries = grownInt(this.lastWindowBySeries, capacity, -1)
+    this.lastSlotBySeries = grownInt(this.lastSlotBySeries, capacity, -1)
   }
 }
 

@@ -126,6 +126,11 @@ export class WindowCursor {
     let unplaced = 0
     const xMul = this.xMul
     const xDiv = this.xDiv
+    // the current window, cached in locals; -1 span forces a lookup on the first row
+    let cur = this.cur
+    let startHi = this.startHi
+    let startLo = this.startLo
+    let span = cur < 0 || this.spanT > maxFastSpan ? -1 : this.spanT
     for (let i = 0; i < length; i++) {
       if (validity !== null) {
         const b = bitOffset + i
@@ -138,18 +143,23 @@ export class WindowCursor {
       }
       const hi = words[2 * i + 1] as number
       const lo = (words[2 * i] as number) >>> 0
-      let d = (hi - this.startHi) * two32 + (lo - this.startLo)
-      if (this.cur < 0 || !(d >= 0 && d < this.spanT) || this.spanT > maxFastSpan) {
+      let d = (hi - startHi) * two32 + (lo - startLo)
+      if (!(d >= 0 && d < span)) {
         const t = (BigInt(hi) << 32n) + BigInt(lo)
         this.enter(this.windowIdAt(Number(floorDiv(t, this.ticksPerMs))))
+        cur = this.cur
+        startHi = this.startHi
+        startLo = this.startLo
         if (this.spanT > maxFastSpan) {
-          outWindow[i] = this.cur
-          outX[i] = (Number(t - BigInt(this.windowStartMs[this.cur] as number) * this.ticksPerMs) * xMul) / xDiv
+          span = -1
+          outWindow[i] = cur
+          outX[i] = (Number(t - BigInt(this.windowStartMs[cur] as number) * this.ticksPerMs) * xMul) / xDiv
           continue
         }
-        d = (hi - this.startHi) * two32 + (lo - this.startLo)
+        span = this.spanT
+        d = (hi - startHi) * two32 + (lo - startLo)
       }
-      outWindow[i] = this.cur
+      outWindow[i] = cur
       outX[i] = (d * xMul) / xDiv
     }
     return unplaced

@@ -1,6 +1,14 @@
 import { describe, expect, it } from 'vitest'
-import { accumulateRows, MomentSlots, type RowColumns, slotMoments } from '../../../src/kernel/accumulate.js'
-import { addRow, emptyMoments, type Moments } from '../../../src/kernel/moments.js'
+import {
+  accumulateIndexed,
+  accumulateRows,
+  MomentSlots,
+  type RowColumns,
+  slotClearlyValid,
+  slotMoments,
+} from '../../../src/kernel/accumulate.js'
+import { addRow, emptyMoments, invalidMomentsReason, type Moments } from '../../../src/kernel/moments.js'
+import { SlotIndex } from '../../../src/kernel/slot-index.js'
 import { A, B, C, momentsOf } from '../../fixtures/worked-example.js'
 
 /** Rows of one slot (slot id 0). */
@@ -142,7 +150,7 @@ describe('accumulateRows', () => {
 
   it('keeps earlier slots intact when the store grows past its initial capacity', () => {
     const slots = new MomentSlots({ weighted: false, trackLag: true })
-    const count = 300
+    const count = 3000
     for (let k = 0; k < count; k++) slots.addSlot()
     for (let k = 0; k < count; k++) {
       const rows = rowsOf(
@@ -153,7 +161,7 @@ describe('accumulateRows', () => {
       accumulateRows(slots, rows)
     }
     expect(slots.size).toBe(count)
-    for (const k of [0, 63, 64, 199, 299]) {
+    for (const k of [0, 63, 64, 1023, 1024, 2047, 2048, 2999]) {
       expect(slotMoments(slots, k)).toStrictEqual(
         momentsOf(
           A.x,
@@ -189,5 +197,72 @@ describe('slotMoments', () => {
   it('throws a RangeError for a slot that is not in use', () => {
     const s = oneSlot(false, false)
     expect(() => slotMoments(s, 1)).toThrow(RangeError)
+  })
+})
+
+/** Seeded invented rows over `series` series and `windows` windows, with some NaN and window −1 rows. */
+function indexedRows(rows: number, series: number, windows: number, seed: number) {
+  const rand = lcg(seed)
+  const s = new Int32Array(rows)
+  const w = new Int32Array(rows)
+  const x = new Float64Array(rows)
+  const y = new Float64Array(rows)
+  const weight = new Float64Array(rows)
+  for (let i = 0; i < rows; i++) {
+    s[i] = Math.floor(rand() * series)
+    // time-ordered windows, so most series stay in their window from row to row
+    w[i] = rand() < 0.01 ? -1 : Math.floor((i / rows) * windows)
+    x[i] = rand() < 0.02 ? Number.NaN : (i % 600) / 10
+    y[i] = rand() < 0.02 ? Number.POSITIVE_INFINITY : 40 + 3 * rand()
+    weight[i] = rand() < 0.02 ? 0 : 1 + rand()
+  }
+  return { length: rows, series: s, window: w, x, y, weight }
+}
+
+describe('accumulateIndexed', () => {
+  it.each([
+    ['plain', false, false],
+    ['lag block', false, true],
+    ['weighted', true, false],
+  ] as const)(
+    'gives bit-identical slots to SlotIndex.assign + accumulateRows (%s), past the store growth',
+    (_, weighted, trackLag) => {
+      // 700 series × 4 windows = 2,800 slots: the store grows past its initial 1,024 slots mid-batch
+      const r = indexedRows(60_000, 700, 4, 99)
+      const rows = { ...r, weight: weighted ? r.weight : null }
+      const fused = new MomentSlots({ weighted, trackLag })
+      const fusedIndex = new SlotIndex(fused)
+      fusedIndex.reserveSeries(700)
+      const badFused = accumulateIndexed(fused, fusedIndex, rows, new Int32Array(r.length))
+      const twoPass = new MomentSlots({ weighted, trackLag })
+      const twoPassIndex = new SlotIndex(twoPass)
+      const slot = new Int32Array(r.length)
+      twoPassIndex.assign(r.length, r.series, r.window, slot)
+      const badTwoPass = accumulateRows(twoPass, { length: r.length, slot, x: r.x, y: r.y, weight: rows.weight })
+      expect(badFused).toBe(badTwoPass)
+      expect(badFused).toBeGreaterThan(1000)
+      expect(fused.size).toBe(2800)
+      for (let k = 0; k < fused.size; k++) expect(slotMoments(fused, k)).toStrictEqual(slotMoments(twoPass, k))
+    },
+  )
+})
+
+describe('slotClearlyValid', () => {
+  it('is true for slots with no rows and for ordinary moments, which invalidMomentsReason accepts', () => {
+    const s = new MomentSlots({ weighted: false, trackLag: false })
+    s.addSlot()
+    s.addSlot()
+    accumulateRows(s, rowsOf(A.x, A.y, undefined, 1))
+    for (const k of [0, 1]) {
+      expect(slotClearlyValid(s, k)).toBe(true)
+      expect(invalidMomentsReason(slotMoments(s, k))).toBeNull()
+    }
+  })
+
+  it('is false when a sum overflowed, and invalidMomentsReason then names the field', () => {
+    const s = oneSlot(false, false)
+    accumulateRows(s, rowsOf([0, 1, 2], [1e200, -1e200, 1e200]))
+    expect(slotClearlyValid(s, 0)).toBe(false)
+    expect(invalidMomentsReason(slotMoments(s, 0))).toMatch(/syy is not finite/)
   })
 })

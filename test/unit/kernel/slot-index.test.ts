@@ -40,4 +40,29 @@ describe('SlotIndex', () => {
     expect(index.slotOf(321, 2)).toBe(seen.get('321,2'))
     expect(index.slotOf(0, 0)).toBe(0)
   })
+
+  it('orders slots by series rank, then window rank, like a plain sort of the pairs', () => {
+    const slots = new MomentSlots({ weighted: false, trackLag: false })
+    const index = new SlotIndex(slots)
+    // invented pairs in a scrambled creation order (seeded LCG), 40 series × 9 windows
+    let seed = 12345
+    const next = (): number => {
+      seed = (Math.imul(seed, 1664525) + 1013904223) >>> 0
+      return seed
+    }
+    const pairs = Array.from({ length: 360 }, (_, i) => [i % 40, Math.floor(i / 40)] as const).sort(
+      () => (next() & 1) - 0.5,
+    )
+    for (const [s, w] of pairs) index.slotOf(s, w)
+    const seriesRank = Int32Array.from({ length: 40 }, (_, s) => (s * 7) % 40)
+    const windowRank = Int32Array.from({ length: 9 }, (_, w) => 8 - w)
+    const expected = Array.from({ length: slots.size }, (_, k) => k).sort(
+      (a, b) =>
+        (seriesRank[index.seriesOfSlot[a] as number] as number) -
+          (seriesRank[index.seriesOfSlot[b] as number] as number) ||
+        (windowRank[index.windowOfSlot[a] as number] as number) -
+          (windowRank[index.windowOfSlot[b] as number] as number),
+    )
+    expect([...index.slotOrder(seriesRank, windowRank)]).toEqual(expected)
+  })
 })
