@@ -361,7 +361,40 @@ function indexedLagged(s: MomentSlots, index: SlotIndex, rows: IndexedRows): num
     st[b + SXY] = (st[b + SXY] as number) + dx * ey
     if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
     if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
-    pairStep(g, inOrder, k, c, xi, yi)
+    // the §5.2 pair step, written out here (as in `pairStep`): V8 did not inline the call
+    const l = k * lagStride
+    if (c === 1) {
+      g[l + FX] = xi
+      g[l + FY] = yi
+      g[l + LX] = xi
+      g[l + LY] = yi
+      continue
+    }
+    const px = g[l + LX] as number
+    const py = g[l + LY] as number
+    if (xi < px) inOrder[k] = 0
+    const p = (g[l + PAIRS] as number) + 1
+    g[l + PAIRS] = p
+    const opx = g[l + PXM] as number
+    const opy = g[l + PYM] as number
+    const ocx = g[l + CXM] as number
+    const ocy = g[l + CYM] as number
+    const dPx = px - opx
+    const dPy = py - opy
+    const dCx = xi - ocx
+    const dCy = yi - ocy
+    const pmx = opx + dPx / p
+    const pmy = opy + dPy / p
+    g[l + PXM] = pmx
+    g[l + PYM] = pmy
+    g[l + CXM] = ocx + dCx / p
+    g[l + CYM] = ocy + dCy / p
+    g[l + CYY1] = (g[l + CYY1] as number) + dCy * (py - pmy)
+    g[l + CYX1] = (g[l + CYX1] as number) + dCy * (px - pmx)
+    g[l + CXY1] = (g[l + CXY1] as number) + dCx * (py - pmy)
+    g[l + CXX1] = (g[l + CXX1] as number) + dCx * (px - pmx)
+    g[l + LX] = xi
+    g[l + LY] = yi
   }
   return bad
 }
