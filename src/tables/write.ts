@@ -1,29 +1,35 @@
 /**
  * Parquet writers for the published tables (design.md "Output tables", "Publish"; io-evaluation.md §4).
  *
- * Path: rows are checked against the column specs of columns.ts and set, 2,048 at a time, straight into the vectors
- * of a DuckDB data chunk that the appender adds to a temp table. Counts and timestamps travel as DOUBLE (exact for
- * safe integers and for epoch ms), so the load allocates no BigInt or value object per cell: the first version
- * (TIMESTAMPTZ/BIGINT values built in JS) spent most of its time in the garbage collector. The SQL then casts them:
- * `CAST(n AS BIGINT)`, `make_timestamptz(CAST(round(ms * 1000) AS BIGINT))` (µs since the epoch, independent of the
- * session TimeZone). One
- * `COPY (SELECT … WHERE partition … ORDER BY …) TO '<part-0.parquet>.tmp-<pid>' (FORMAT parquet, COMPRESSION …)` per
- * partition writes the file. `COPY … PARTITION_BY` is not used: it names files itself and may split a partition into
- * several files, while every partition here is exactly one file with a fixed name. When every temp of the call is
- * written and fsynced, all are renamed into place (publish.ts explains the layers of atomicity).
+ * Path: every value is checked against the column specs of columns.ts and gathered, column by column, into typed
+ * arrays; the rows are sorted in JS by partition, then by the table order. DuckDB reads the arrays through a table
+ * function during `COPY (SELECT …) TO '<part-0.parquet>.tmp-<pid>' (FORMAT parquet, COMPRESSION …)`, one COPY per
+ * partition, each over that partition's range of the sorted rows (columnar.ts explains the hand-off and why: the
+ * earlier temp table, loaded by an appender, cost several times more). `COPY … PARTITION_BY` is not used: it names
+ * files itself and may split a partition into several files, while every partition here is exactly one file with a
+ * fixed name. When every temp of the call is written and fsynced, all are renamed into place (publish.ts explains
+ * the layers of atomicity).
  *
  * Layout: `<dir>/<window_date=YYYY-MM-DD>/part-0.parquet` (fits, shifts; UTC date of window_start) and
  * `<dir>/<run_date=YYYY-MM-DD>/part-0.parquet` (runs; UTC date of started_at). The partition column lives in the
- * folder name only, as Hive readers expect. Rows in a file are sorted by the key columns (nulls first), then
- * window_start (runs: started_at, run_id), so the same rows always give the same bytes.
+ * folder name only, as Hive readers expect. Rows in a file are sorted by the key columns (nulls first, by UTF-8
+ * bytes as DuckDB sorts VARCHAR), then window_start (runs: started_at, run_id), so the same rows always give the
+ * same bytes. Rows merged with an existing file are sorted by DuckDB (ORDER BY) in the same order.
  */
 import { join } from 'node:path'
-import { BOOLEAN, DOUBLE, type DuckDBConnection, DuckDBDataChunk, type DuckDBType, VARCHAR } from '@duckdb/node-api'
+import type { DuckDBConnection } from '@duckdb/node-api'
 import { DataError, ExitCode, IoError, SlopeshiftError } from '../errors.js'
 import { type SeriesKey, seriesId } from '../types.js'
 import {
+  type ColumnarRows,
+  compareUtf8,
+  type GatheredColumn,
+  gatherColumn,
+  isRejected,
+  withColumnarRows,
+} from './columnar.js'
+import {
   type ColumnSpec,
-  type ColumnType,
   duckdbTypeName,
   identityColumns,
   orderColumns,
@@ -35,7 +41,8 @@ import {
   tableSpecs,
   valueCheck,
 } from './columns.js'
-import { quoteIdent, quoteLiteral, uniqueTempTableName, withConnection } from './duckdb.js'
+import { quoteIdent, quoteLiteral, withConnection } from './duckdb.js'
+import { compileGatherer } from './gather.js'
 import { errnoCode, makeDir, type PendingFile, removeQuietly, renameAll, syncFile } from './publish.js'
 import { describeParquet } from './read.js'
 
@@ -80,9 +87,6 @@ export interface WrittenPartition {
   /** Rows in the file. */
   readonly rows: number
 }
-
-/** Rows handed to DuckDB per data chunk: DuckDB's vector size. */
-const chunkRows = 2048
 
 /**
  * Writes `rows` as the whole content of every partition they fall in: each partition folder gets one
@@ -146,113 +150,256 @@ async function writePartitions(
 ): Promise<ReplaceResult> {
   const keyColumns = tableSpecs[table].hasKey ? options.keyColumns : []
   const columns = tableColumns(table, keyColumns)
-  const loaded = prepareRows(table, columns, keyColumns, rows)
+  const staged = stageRows(table, columns, keyColumns, rows)
   const replaceStarts = mergeExisting ? [...new Set(options.replaceWindowStarts ?? [])].sort((a, b) => a - b) : []
-  const partitions = new Set(loaded.partitionRows.keys())
+  const partitions = new Set(staged.rangeOf.keys())
   for (const start of replaceStarts) {
     const name = partitionName(table, start)
     if (name !== null) partitions.add(name)
   }
   if (partitions.size === 0) return { written: [], removed: [] }
   const outDir = options.stagingDir ?? options.dir
-  return withConnection(options.connection, async (connection) => {
-    const loadTable = uniqueTempTableName('slopeshift_load')
-    const pending: PendingFile[] = []
-    const written: WrittenPartition[] = []
-    const removed: string[] = []
-    try {
-      await loadRows(connection, table, loadTable, columns, loaded)
-      for (const partition of [...partitions].sort()) {
-        const folder = join(outDir, partition)
-        await makeDir(folder)
-        const finalPath = join(folder, partitionFileName)
-        const tempPath = `${finalPath}.tmp-${process.pid}`
-        pending.push({ tempPath, finalPath })
-        const existing = mergeExisting ? await existingFile(connection, join(options.dir, partition), columns) : null
-        const rowCount = await copyPartition(connection, {
-          table,
-          loadTable,
-          columns,
-          keyColumns,
-          partition,
-          existing,
-          tempPath,
-          compression: options.compression,
-          replaceStarts,
-        })
-        if (rowCount === 0 && !loaded.partitionRows.has(partition)) {
-          pending.pop()
-          await removeQuietly([tempPath])
-          if (existing !== null) removed.push(partition)
-          continue
+  const emptyRange = staged.rows.ranges.length - 1
+  return withConnection(options.connection, (connection) =>
+    withColumnarRows(connection, staged.rows, async (select) => {
+      const pending: PendingFile[] = []
+      const written: WrittenPartition[] = []
+      const removed: string[] = []
+      try {
+        for (const partition of [...partitions].sort()) {
+          const folder = join(outDir, partition)
+          const existing = mergeExisting ? await existingFile(connection, join(options.dir, partition), columns) : null
+          const range = staged.rangeOf.get(partition)
+          if (range === undefined && existing === null) continue
+          await makeDir(folder)
+          const finalPath = join(folder, partitionFileName)
+          const tempPath = `${finalPath}.tmp-${process.pid}`
+          pending.push({ tempPath, finalPath })
+          const rowCount = await copyPartition(connection, {
+            table,
+            newRows: select(range ?? emptyRange),
+            columns,
+            keyColumns,
+            existing,
+            tempPath,
+            compression: options.compression,
+            replaceStarts,
+          })
+          if (rowCount === 0 && range === undefined) {
+            pending.pop()
+            await removeQuietly([tempPath])
+            removed.push(partition)
+            continue
+          }
+          await syncFile(tempPath)
+          written.push({ partition, path: finalPath, rows: rowCount })
         }
-        await syncFile(tempPath)
-        written.push({ partition, path: finalPath, rows: rowCount })
+      } catch (err) {
+        await removeQuietly(pending.map((p) => p.tempPath))
+        throw err
       }
-    } catch (err) {
-      await removeQuietly(pending.map((p) => p.tempPath))
-      throw err
-    } finally {
-      await connection.run(`DROP TABLE IF EXISTS ${quoteIdent(loadTable)}`).catch(() => undefined)
-    }
-    await renameAll(pending, true)
-    return { written, removed }
-  })
+      await renameAll(pending, true)
+      return { written, removed }
+    }),
+  )
 }
 
-/** Rows with checked keys and identities, and the partition of each row. */
-interface LoadedRows {
-  readonly rows: readonly Record<string, unknown>[]
-  readonly keys: readonly (SeriesKey | null)[]
-  readonly partitionRows: Map<string, number>
+/** Rows checked, gathered into columns and ordered as the files hold them; one range of positions per partition. */
+interface StagedRows {
+  /** Ranges: one per partition with rows, in partition order, then one empty range. */
+  readonly rows: ColumnarRows
+  /** Range index of each partition folder name that has new rows. */
+  readonly rangeOf: ReadonlyMap<string, number>
 }
 
 /**
- * Checks the shape of each row (an object, a key of the right length, a usable partition instant, no repeated
- * identity) and finds its partition. Column values are checked while loading (see loadRows), still before any file
- * is written.
+ * Checks every row and value before any file is written, gathers the columns and sorts the rows by partition, then
+ * by the order of the table (key columns, nulls first, in DuckDB's VARCHAR order; then window_start, or started_at
+ * and run_id). The checks, in this order: each row is an object with a key of the right length; each value fits its
+ * column (column by column, rows in input order); the partition instant has a 4-digit UTC year; no two rows share an
+ * identity (the later row of the first repeat, in input order, is named).
  */
-function prepareRows(
+function stageRows(
   table: TableName,
   columns: readonly ColumnSpec[],
   keyColumns: readonly string[],
   rows: readonly unknown[],
-): LoadedRows {
+): StagedRows {
   const spec = tableSpecs[table]
-  const records: Record<string, unknown>[] = []
-  const keys: (SeriesKey | null)[] = []
-  const partitionRows = new Map<string, number>()
-  const seen = new Set<string>()
-  const identity = spec.identity
-  const sourceColumn = columns.find((c) => c.name === spec.partitionSource) as ColumnSpec
-  const sourceConverter = converterFor(sourceColumn)
+  const rowCount = rows.length
+  const gathered = gatherFast(table, columns, keyColumns, rows) ?? gatherChecked(table, columns, keyColumns, rows)
+  const keyOf = (i: number): SeriesKey | null => (spec.hasKey ? (rows[i] as { key: SeriesKey }).key : null)
+  const byName = new Map(gathered.map((g) => [g.name, g]))
+  const source = byName.get(spec.partitionSource) as GatheredColumn
+  // UTC day of each row's partition instant, and the partition folder of each day.
+  const days = new Float64Array(rowCount)
   const partitionOfDay = new Map<number, string>()
-  for (const [index, row] of rows.entries()) {
+  for (let i = 0; i < rowCount; i++) {
+    const ms = source.data[i] as number
+    const day = Math.floor(ms / dayMs)
+    days[i] = day
+    if (!partitionOfDay.has(day)) {
+      const name = partitionName(table, ms)
+      if (name === null) {
+        throw rowError(table, i, keyOf(i), `has ${spec.partitionSource} out of range (${ms})`)
+      }
+      partitionOfDay.set(day, name)
+    }
+  }
+  const sortKeys = [days, ...orderColumns(table, keyColumns).map((name) => sortKeyOf(byName.get(name)))]
+  const order = sortedOrder(rowCount, sortKeys)
+  checkIdentity(table, keyColumns, rowCount, keyOf, byName, sortKeys, order)
+  // Ranges of positions per day, in day (= partition name) order.
+  const ranges: [number, number][] = []
+  const rangeOf = new Map<string, number>()
+  let from = 0
+  for (let p = 1; p <= rowCount; p++) {
+    const day = days[order === null ? from : (order[from] as number)] as number
+    if (p < rowCount && days[order === null ? p : (order[p] as number)] === day) continue
+    rangeOf.set(partitionOfDay.get(day) as string, ranges.length)
+    ranges.push([from, p])
+    from = p
+  }
+  ranges.push([0, 0])
+  return { rows: { columns: gathered, rowCount, order, ranges }, rangeOf }
+}
+
+/** The columns through the compiled one-pass gatherer (gather.ts), or null when a row or value is refused. */
+function gatherFast(
+  table: TableName,
+  columns: readonly ColumnSpec[],
+  keyColumns: readonly string[],
+  rows: readonly unknown[],
+): GatheredColumn[] | null {
+  const gather = compileGatherer(
+    columns.map((column, c) => ({
+      name: column.name,
+      type: column.type,
+      nullable: column.nullable,
+      source: column.role,
+      ...(column.role === 'key' ? { keyIndex: c } : {}),
+      ...(column.values === undefined ? {} : { values: column.values }),
+    })),
+    tableSpecs[table].hasKey ? keyColumns.length : null,
+  )
+  return gather(rows)
+}
+
+/**
+ * The columns, checked in the writer's order so that the first problem is the one named: each row is an object with
+ * a key of the right length (row by row), then each value fits its column (column by column, rows in input order).
+ */
+function gatherChecked(
+  table: TableName,
+  columns: readonly ColumnSpec[],
+  keyColumns: readonly string[],
+  rows: readonly unknown[],
+): GatheredColumn[] {
+  const spec = tableSpecs[table]
+  const rowCount = rows.length
+  const records: Record<string, unknown>[] = new Array(rowCount)
+  const keys: (SeriesKey | null)[] = new Array(rowCount)
+  for (let index = 0; index < rowCount; index++) {
+    const row = rows[index]
     if (typeof row !== 'object' || row === null) throw rowError(table, index, null, 'is not an object')
     const record = row as Record<string, unknown>
-    const key = spec.hasKey ? checkKey(table, index, record.key, keyColumns.length) : null
-    let id = key === null ? '' : seriesId(key)
-    for (const c of identity) id += `\u0000${String(record[c])}`
-    if (seen.has(id)) {
-      throw rowError(table, index, key, `repeats the identity (${identityColumns(table, keyColumns).join(', ')})`)
-    }
-    seen.add(id)
-    const source = record[spec.partitionSource]
-    if (sourceConverter.convert(source) === invalid) {
-      throw valueError(table, index, key, sourceColumn, sourceConverter.expected, source)
-    }
-    const day = Math.floor((source as number) / dayMs)
-    let partition = partitionOfDay.get(day) ?? null
-    if (partition === null) {
-      partition = partitionName(table, source as number)
-      if (partition === null) throw rowError(table, index, key, `has ${spec.partitionSource} out of range (${source})`)
-      partitionOfDay.set(day, partition)
-    }
-    records.push(record)
-    keys.push(key)
-    partitionRows.set(partition, (partitionRows.get(partition) ?? 0) + 1)
+    records[index] = record
+    keys[index] = spec.hasKey ? checkKey(table, index, record.key, keyColumns.length) : null
   }
-  return { rows: records, keys, partitionRows }
+  return columns.map((column, c): GatheredColumn => {
+    const get =
+      column.role === 'key'
+        ? (i: number): unknown => (keys[i] as SeriesKey)[c]
+        : (i: number): unknown => (records[i] as Record<string, unknown>)[column.name]
+    const result = gatherColumn(column.name, column.type, column.nullable, rowCount, get, valueCheck(column))
+    if (isRejected(result)) throw valueError(table, result.row, keys[result.row] ?? null, column, result.raw)
+    return result
+  })
+}
+
+/**
+ * Sort key of a column as numbers: the values of a number column; for a VARCHAR column the rank of each string in
+ * DuckDB's order, null (nulls first) as -1.
+ */
+function sortKeyOf(column: GatheredColumn | undefined): Float64Array {
+  if (column === undefined) throw new Error('order column missing from the gathered columns')
+  if (column.type !== 'VARCHAR') return column.data as Float64Array
+  const ranked = column.dictionary.map((text, code) => ({ text, code })).sort((a, b) => compareUtf8(a.text, b.text))
+  const rankOfCode = new Float64Array(ranked.length)
+  for (const [rank, { code }] of ranked.entries()) rankOfCode[code] = rank
+  const { data, nulls } = column
+  const out = new Float64Array(data.length)
+  for (let i = 0; i < out.length; i++)
+    out[i] = nulls !== null && nulls[i] === 1 ? -1 : (rankOfCode[data[i] as number] as number)
+  return out
+}
+
+/** Compares rows a and b on the sort keys, in turn. */
+function compareRows(sortKeys: readonly Float64Array[], a: number, b: number): number {
+  for (const key of sortKeys) {
+    const d = (key[a] as number) - (key[b] as number)
+    if (d !== 0) return d
+  }
+  return 0
+}
+
+/** The positions of the rows sorted on the sort keys (stable), or null when they are in order already. */
+function sortedOrder(rowCount: number, sortKeys: readonly Float64Array[]): Uint32Array | null {
+  let sorted = true
+  for (let i = 1; i < rowCount && sorted; i++) sorted = compareRows(sortKeys, i - 1, i) <= 0
+  if (sorted) return null
+  const order = new Uint32Array(rowCount)
+  for (let i = 0; i < rowCount; i++) order[i] = i
+  return order.sort((a, b) => compareRows(sortKeys, a, b) || a - b)
+}
+
+/**
+ * Throws for the first row (in input order) whose identity an earlier row has. Fits and shifts are identified by
+ * their order (key columns, window_start), so repeats sit side by side once sorted; runs by run_id.
+ */
+function checkIdentity(
+  table: TableName,
+  keyColumns: readonly string[],
+  rowCount: number,
+  keyOf: (row: number) => SeriesKey | null,
+  byName: ReadonlyMap<string, GatheredColumn>,
+  sortKeys: readonly Float64Array[],
+  order: Uint32Array | null,
+): void {
+  const spec = tableSpecs[table]
+  let repeat = Number.POSITIVE_INFINITY
+  if (spec.identity.join() === spec.order.join()) {
+    // In a group of equal rows, every row but the first in input order repeats an identity.
+    const at = (p: number): number => (order === null ? p : (order[p] as number))
+    for (let p = 1; p < rowCount; p++) {
+      if (compareRows(sortKeys, at(p - 1), at(p)) !== 0) continue
+      let first = at(p - 1)
+      let second = Number.POSITIVE_INFINITY
+      for (let q = p; q < rowCount && compareRows(sortKeys, at(p - 1), at(q)) === 0; q++, p++) {
+        const row = at(q)
+        if (row < first) [first, second] = [row, first]
+        else if (row < second) second = row
+      }
+      repeat = Math.min(repeat, second)
+    }
+  } else {
+    const seen = new Set<string>()
+    const identity = spec.identity.map((name) => byName.get(name) as GatheredColumn)
+    for (let i = 0; i < rowCount && repeat === Number.POSITIVE_INFINITY; i++) {
+      let id = ''
+      for (const column of identity) id += `\u0000${column.nulls?.[i] === 1 ? 'null' : String(column.data[i])}`
+      if (seen.has(id)) repeat = i
+      seen.add(id)
+    }
+  }
+  if (repeat !== Number.POSITIVE_INFINITY) {
+    throw rowError(
+      table,
+      repeat,
+      keyOf(repeat),
+      `repeats the identity (${identityColumns(table, keyColumns).join(', ')})`,
+    )
+  }
 }
 
 function checkKey(table: TableName, index: number, key: unknown, length: number): SeriesKey {
@@ -264,50 +411,39 @@ function checkKey(table: TableName, index: number, key: unknown, length: number)
 
 const dayMs = 86_400_000
 
-/** What a converter returns for a value its column cannot hold. */
-const invalid: unique symbol = Symbol('invalid')
-
-/** A value as loaded: counts and epoch ms as DOUBLE, strings, booleans, null. */
-type LoadValue = number | string | boolean | null
-
-/** Checks one value for a column and returns what is loaded (null passes only when the column is nullable). */
-interface Converter {
-  readonly convert: (raw: unknown) => LoadValue | typeof invalid
-  /** What the column expects, for the error message. */
-  readonly expected: string
-}
-
-/** One converter per column, chosen once per write rather than per value (the load loop runs per cell). */
-function converterFor(column: ColumnSpec): Converter {
-  // Loaded as epoch ms for TIMESTAMPTZ; stored in µs: whole ms round-trip exactly, fractions are rounded.
-  const check = valueCheck(column)
-  const convert = (raw: unknown): LoadValue | typeof invalid => (check(raw) ? (raw as LoadValue) : invalid)
-  const expected = {
-    VARCHAR: column.values === undefined ? 'a string' : `one of ${column.values.join(', ')}`,
-    BIGINT: 'a whole number',
-    DOUBLE: 'a number',
-    BOOLEAN: 'a boolean',
-    TIMESTAMPTZ: 'epoch ms within ±8.64e15',
-  }[column.type]
-  return {
-    convert: column.nullable ? (raw) => (raw === null ? null : convert(raw)) : convert,
-    expected,
+/** What a column expects, for the error message. */
+function expectedOf(column: ColumnSpec): string {
+  switch (column.type) {
+    case 'VARCHAR':
+      return column.values === undefined ? 'a string' : `one of ${column.values.join(', ')}`
+    case 'BIGINT':
+      return 'a whole number'
+    case 'DOUBLE':
+      return 'a number'
+    case 'BOOLEAN':
+      return 'a boolean'
+    case 'TIMESTAMPTZ':
+      return 'epoch ms within ±8.64e15'
   }
 }
 
-/** The error for a value `raw` of `column` that its converter refused. */
+/** The error for a value `raw` of `column` that its check refused. */
 function valueError(
   table: TableName,
   index: number,
   key: SeriesKey | null,
   column: ColumnSpec,
-  expected: string,
   raw: unknown,
 ): SlopeshiftError {
   if (raw === null || raw === undefined) {
     return rowError(table, index, key, `column "${column.name}" is ${String(raw)} but must hold a value`)
   }
-  return rowError(table, index, key, `column "${column.name}" must be ${expected}, got ${JSON.stringify(raw) ?? raw}`)
+  return rowError(
+    table,
+    index,
+    key,
+    `column "${column.name}" must be ${expectedOf(column)}, got ${JSON.stringify(raw) ?? raw}`,
+  )
 }
 
 function rowError(table: TableName, index: number, key: SeriesKey | null, problem: string): SlopeshiftError {
@@ -320,74 +456,12 @@ function rowError(table: TableName, index: number, key: SeriesKey | null, proble
   )
 }
 
-/** Load-table type of a column: counts and timestamps travel as DOUBLE (see the module comment). */
-const loadTypes: Readonly<Record<ColumnType, DuckDBType>> = {
-  VARCHAR,
-  BIGINT: DOUBLE,
-  DOUBLE,
-  BOOLEAN,
-  TIMESTAMPTZ: DOUBLE,
-}
-
-/** SQL that turns a load-table column (alias `alias`) into its published type. */
-function publishedExpr(column: ColumnSpec): string {
-  const name = quoteIdent(column.name)
-  switch (column.type) {
-    case 'BIGINT':
-      return `CAST(${name} AS BIGINT) AS ${name}`
-    case 'TIMESTAMPTZ':
-      return `make_timestamptz(CAST(round(${name} * 1000) AS BIGINT)) AS ${name}`
-    default:
-      return name
-  }
-}
-
-/** Checks every value and loads the rows into a new temp table, 2,048 rows per data chunk, column by column. */
-async function loadRows(
-  connection: DuckDBConnection,
-  table: TableName,
-  loadTable: string,
-  columns: readonly ColumnSpec[],
-  loaded: LoadedRows,
-): Promise<void> {
-  const types = columns.map((c) => loadTypes[c.type])
-  const defs = columns.map((c, i) => `${quoteIdent(c.name)} ${types[i]}`)
-  await connection.run(`CREATE TEMP TABLE ${quoteIdent(loadTable)} (${defs.join(', ')})`)
-  const converters = columns.map(converterFor)
-  const { rows, keys } = loaded
-  const appender = await connection.createAppender(loadTable)
-  try {
-    for (let offset = 0; offset < rows.length; offset += chunkRows) {
-      const count = Math.min(chunkRows, rows.length - offset)
-      const chunk = DuckDBDataChunk.create(types, count)
-      for (let c = 0; c < columns.length; c++) {
-        const column = columns[c] as ColumnSpec
-        const { convert, expected } = converters[c] as Converter
-        const vector = chunk.getColumnVector(c)
-        for (let i = 0; i < count; i++) {
-          const index = offset + i
-          const key = keys[index] ?? null
-          const raw = column.role === 'key' ? (key?.[c] ?? null) : rows[index]?.[column.name]
-          const value = convert(raw)
-          if (value === invalid) throw valueError(table, index, key, column, expected, raw)
-          vector.setItem(i, value)
-        }
-        vector.flush()
-      }
-      appender.appendDataChunk(chunk)
-    }
-    appender.flushSync()
-  } finally {
-    appender.closeSync()
-  }
-}
-
 interface CopyPlan {
   readonly table: TableName
-  readonly loadTable: string
+  /** SELECT of the partition's new rows, in their published types and file order (see withColumnarRows). */
+  readonly newRows: string
   readonly columns: readonly ColumnSpec[]
   readonly keyColumns: readonly string[]
-  readonly partition: string
   /** Existing file of the partition to merge with, or null. */
   readonly existing: string | null
   readonly tempPath: string
@@ -396,35 +470,31 @@ interface CopyPlan {
   readonly replaceStarts?: readonly number[]
 }
 
-/** Writes one partition file with COPY; returns the number of rows written. */
+/**
+ * Writes one partition file with COPY; returns the number of rows written. New rows alone come in file order; merged
+ * with an existing file, the union is sorted by the table order.
+ */
 async function copyPartition(connection: DuckDBConnection, plan: CopyPlan): Promise<number> {
-  const list = plan.columns.map((c) => quoteIdent(c.name)).join(', ')
-  // The partition is the UTC day [dayStart, dayStart + 1 day) of the partition source, loaded as epoch ms DOUBLE:
-  // the same floor-by-day rule as partitionName, with no per-row partition column to load.
-  const dayStart = Date.parse(`${plan.partition.slice(plan.partition.indexOf('=') + 1)}T00:00:00Z`)
-  const sourceColumn = quoteIdent(tableSpecs[plan.table].partitionSource)
-  // `n`: the new rows of this partition, in their published types.
-  let source =
-    `WITH n AS (SELECT ${plan.columns.map(publishedExpr).join(', ')} FROM ${quoteIdent(plan.loadTable)} ` +
-    `WHERE ${sourceColumn} >= ${dayStart} AND ${sourceColumn} < ${dayStart + dayMs}) SELECT ${list} FROM n`
+  let source = plan.newRows
   if (plan.existing !== null) {
+    const list = plan.columns.map((c) => quoteIdent(c.name)).join(', ')
     const match = identityColumns(plan.table, plan.keyColumns)
       .map((c) => `n.${quoteIdent(c)} IS NOT DISTINCT FROM e.${quoteIdent(c)}`)
       .join(' AND ')
-    source +=
+    source =
+      `WITH n AS (${plan.newRows}) SELECT ${list} FROM n` +
       ` UNION ALL SELECT ${plan.columns.map((c) => `e.${quoteIdent(c.name)}`).join(', ')}` +
       ` FROM read_parquet(${quoteLiteral(plan.existing)}, hive_partitioning = false) AS e` +
       ` WHERE NOT EXISTS (SELECT 1 FROM n WHERE ${match})`
     if (plan.replaceStarts !== undefined && plan.replaceStarts.length > 0) {
       source += ` AND epoch_ms(e.window_start) NOT IN (${plan.replaceStarts.map((s) => String(Math.trunc(s))).join(', ')})`
     }
+    const order = orderColumns(plan.table, plan.keyColumns)
+      .map((c) => `${quoteIdent(c)} ASC NULLS FIRST`)
+      .join(', ')
+    source += ` ORDER BY ${order}`
   }
-  const order = orderColumns(plan.table, plan.keyColumns)
-    .map((c) => `${quoteIdent(c)} ASC NULLS FIRST`)
-    .join(', ')
-  const sql =
-    `COPY (${source} ORDER BY ${order}) TO ${quoteLiteral(plan.tempPath)} ` +
-    `(FORMAT parquet, COMPRESSION ${plan.compression})`
+  const sql = `COPY (${source}) TO ${quoteLiteral(plan.tempPath)} (FORMAT parquet, COMPRESSION ${plan.compression})`
   try {
     const result = await connection.run(sql)
     return Number(result.rowsChanged)
