@@ -10,8 +10,9 @@
  * files of a run that crashed before its commit) are removed by `gcPartials` at the start of the
  * next run, or right after a commit.
  *
- * Written with DuckDB (`@duckdb/node-api`): the appender stores doubles as their IEEE-754 bits, so a
- * round-trip is bit-exact, including −0, NaN and ±Infinity (empty-state `x_min`/`x_max`, §1.4).
+ * Written with DuckDB (`@duckdb/node-api`): the columns reach it as typed arrays (tables/columnar.ts), so doubles
+ * keep their IEEE-754 bits and a round-trip is bit-exact, including −0, NaN and ±Infinity (empty-state
+ * `x_min`/`x_max`, §1.4).
  */
 import { createHash } from 'node:crypto'
 import { open, readdir, rename, unlink } from 'node:fs/promises'
@@ -23,6 +24,7 @@ import type { LagBlock, Moments } from '../kernel/moments.js'
 import { emptyLag, invalidMomentsReason, lagDoubleFields } from '../kernel/moments.js'
 import type { LedgerEntry } from '../plan/files.js'
 import { comparePaths } from '../plan/files.js'
+import { type ColumnarRows, type GatheredColumn, withColumnarRows } from '../tables/columnar.js'
 import type { PartialMoments, SeriesKey } from '../types.js'
 import { seriesId } from '../types.js'
 import { ensureDir, fsyncDir, hasCode, stateDir } from './paths.js'
@@ -122,54 +124,29 @@ export function ledgerPartialsFiles(
 /**
  * Writes the partials of one input file to `target` atomically: DuckDB writes
  * `<target>.tmp-<pid>` (zstd Parquet), the tmp file is fsynced and renamed over `target`, and the
- * folder is fsynced. Rows are sorted by (series id, window start) so equal inputs give equal bytes.
+ * folder is fsynced. Rows are sorted by (series id, window start, source path) so equal inputs give equal bytes.
  * An empty list still writes a file (zero rows), so every ledger entry has its partials file.
  *
- * @throws CantCreateError when the folder or file cannot be written.
+ * The moments are gathered into one typed array per column and read by DuckDB during the COPY
+ * (tables/columnar.ts); doubles keep their IEEE-754 bits. Counts and window starts must be safe integers.
+ *
+ * @throws CantCreateError when the folder or file cannot be written, or when a count or window start is not a
+ *   safe integer (a bug upstream; the cause names the column).
  */
 export async function writePartials(
   target: string,
   partials: readonly PartialMoments[],
   options: PartialsDbOptions = {},
 ): Promise<void> {
-  const rows = partials
-    .map((p) => ({ p, id: seriesId(p.key) }))
-    .sort(
-      (a, b) => comparePaths(a.id, b.id) || a.p.windowStartMs - b.p.windowStartMs || comparePaths(a.p.file, b.p.file),
-    )
   const tmp = `${target}.tmp-${process.pid}`
-  const table = `partials_${process.pid}_${++tableCounter}`
   try {
+    const rows = gatherPartials(partials)
     await ensureDir(dirname(target))
-    await withConnection(options, async (c) => {
-      await c.run(`CREATE TEMP TABLE ${table} (${partialsColumns.map(([n, t]) => `${n} ${t}`).join(', ')})`)
-      try {
-        const a = await c.createAppender(table)
-        for (const { p, id } of rows) {
-          const m = p.moments
-          a.appendVarchar(p.file)
-          a.appendVarchar(id)
-          a.appendBigInt(BigInt(p.windowStartMs))
-          a.appendBigInt(BigInt(m.n))
-          for (const v of [m.wSum, m.xMean, m.yMean, m.sxx, m.syy, m.sxy, m.xMin, m.xMax]) a.appendDouble(v)
-          a.appendBigInt(BigInt(m.skipped))
-          const g = m.lag
-          a.appendBoolean(g !== null)
-          if (g === null) {
-            for (let i = 0; i < lagDoubleFields.length + 2; i++) a.appendNull()
-          } else {
-            a.appendBigInt(BigInt(g.pairs))
-            for (const f of lagDoubleFields) a.appendDouble(g[f])
-            a.appendBoolean(g.inOrder)
-          }
-          a.endRow()
-        }
-        a.closeSync()
-        await c.run(`COPY ${table} TO ${sqlString(tmp)} (FORMAT parquet, COMPRESSION zstd)`)
-      } finally {
-        await c.run(`DROP TABLE IF EXISTS ${table}`)
-      }
-    })
+    await withConnection(options, (c) =>
+      withColumnarRows(c, rows, (select) =>
+        c.run(`COPY (${select(0)}) TO ${sqlString(tmp)} (FORMAT parquet, COMPRESSION zstd)`),
+      ),
+    )
     const handle = await open(tmp, 'r')
     try {
       await handle.sync()
@@ -185,6 +162,150 @@ export async function writePartials(
       cause,
     })
   }
+}
+
+/**
+ * The partials as the columns of {@link partialsColumns}, in one pass over the rows, and their file order: series id,
+ * then window start, then source path (code-unit order, like every sort of ids and paths here).
+ */
+function gatherPartials(partials: readonly PartialMoments[]): ColumnarRows {
+  const count = partials.length
+  const strings = () => ({
+    codes: new Uint32Array(count),
+    dictionary: [] as string[],
+    codeOf: new Map<string, number>(),
+  })
+  const paths = strings()
+  const ids = strings()
+  const numbers = new Map<string, Float64Array>()
+  for (const [name, type] of partialsColumns)
+    if (type === 'BIGINT' || type === 'DOUBLE') numbers.set(name, new Float64Array(count))
+  const column = (name: string): Float64Array => numbers.get(name) as Float64Array
+  const start = column('window_start_ms')
+  const n = column('n')
+  const wSum = column('w_sum')
+  const xMean = column('x_mean')
+  const yMean = column('y_mean')
+  const sxx = column('sxx')
+  const syy = column('syy')
+  const sxy = column('sxy')
+  const xMin = column('x_min')
+  const xMax = column('x_max')
+  const skipped = column('skipped')
+  const pairs = column('lag_pairs')
+  // Every lag field gets its column (a missing one fails to compile); the loop assigns each by name.
+  const lag: Record<(typeof lagDoubleFields)[number], Float64Array> = {
+    curXMean: column(lagColumnOf.curXMean),
+    curYMean: column(lagColumnOf.curYMean),
+    prevXMean: column(lagColumnOf.prevXMean),
+    prevYMean: column(lagColumnOf.prevYMean),
+    cYy1: column(lagColumnOf.cYy1),
+    cYx1: column(lagColumnOf.cYx1),
+    cXy1: column(lagColumnOf.cXy1),
+    cXx1: column(lagColumnOf.cXx1),
+    firstX: column(lagColumnOf.firstX),
+    firstY: column(lagColumnOf.firstY),
+    lastX: column(lagColumnOf.lastX),
+    lastY: column(lagColumnOf.lastY),
+  }
+  const lagPresent = new Uint8Array(count)
+  const inOrder = new Uint8Array(count)
+  // Lag columns are null where the lag block is absent.
+  const lagNulls = new Uint8Array(count)
+  let anyLagNull = false
+  const code = (s: ReturnType<typeof strings>, text: string, i: number): void => {
+    let c = s.codeOf.get(text)
+    if (c === undefined) {
+      c = s.dictionary.length
+      s.codeOf.set(text, c)
+      s.dictionary.push(text)
+    }
+    s.codes[i] = c
+  }
+  for (let i = 0; i < count; i++) {
+    const p = partials[i] as PartialMoments
+    const m = p.moments
+    code(paths, p.file, i)
+    code(ids, seriesId(p.key), i)
+    start[i] = wholeNumber(p.windowStartMs, 'window_start_ms')
+    n[i] = wholeNumber(m.n, 'n')
+    wSum[i] = m.wSum
+    xMean[i] = m.xMean
+    yMean[i] = m.yMean
+    sxx[i] = m.sxx
+    syy[i] = m.syy
+    sxy[i] = m.sxy
+    xMin[i] = m.xMin
+    xMax[i] = m.xMax
+    skipped[i] = wholeNumber(m.skipped, 'skipped')
+    const g = m.lag
+    if (g === null) {
+      lagNulls[i] = 1
+      anyLagNull = true
+      continue
+    }
+    lagPresent[i] = 1
+    pairs[i] = wholeNumber(g.pairs, 'lag_pairs')
+    // Field by field (not a loop over lagDoubleFields): a name per site keeps the property reads monomorphic.
+    lag.curXMean[i] = g.curXMean
+    lag.curYMean[i] = g.curYMean
+    lag.prevXMean[i] = g.prevXMean
+    lag.prevYMean[i] = g.prevYMean
+    lag.cYy1[i] = g.cYy1
+    lag.cYx1[i] = g.cYx1
+    lag.cXy1[i] = g.cXy1
+    lag.cXx1[i] = g.cXx1
+    lag.firstX[i] = g.firstX
+    lag.firstY[i] = g.firstY
+    lag.lastX[i] = g.lastX
+    lag.lastY[i] = g.lastY
+    inOrder[i] = g.inOrder ? 1 : 0
+  }
+  const columns = partialsColumns.map(([name, type]): GatheredColumn => {
+    if (name === 'source_path' || name === 'series_id') {
+      const s = name === 'source_path' ? paths : ids
+      return { name, type, data: s.codes, dictionary: s.dictionary, nulls: null }
+    }
+    const nulls = anyLagNull && name.startsWith('lag_') && name !== 'lag_present' ? lagNulls : null
+    if (name === 'lag_present' || name === 'lag_in_order') {
+      return { name, type, data: name === 'lag_present' ? lagPresent : inOrder, dictionary: [], nulls }
+    }
+    return { name, type, data: column(name), dictionary: [], nulls }
+  })
+  return { columns, rowCount: count, order: partialsOrder(ids, start, paths), ranges: [[0, count]] }
+}
+
+/** A count or epoch ms as stored: a safe integer, else a TypeError naming the column. */
+function wholeNumber(value: number, column: string): number {
+  if (!Number.isSafeInteger(value))
+    throw new TypeError(`partials column ${column} must be a safe integer, got ${value}`)
+  return value
+}
+
+/** Row positions sorted by (series id, window start, source path), or null when the rows are in that order. */
+function partialsOrder(
+  ids: { readonly codes: Uint32Array; readonly dictionary: readonly string[] },
+  start: Float64Array,
+  paths: { readonly codes: Uint32Array; readonly dictionary: readonly string[] },
+): Uint32Array | null {
+  const rank = (s: { readonly codes: Uint32Array; readonly dictionary: readonly string[] }): Uint32Array => {
+    const ranked = s.dictionary.map((text, c) => [text, c] as const).sort((a, b) => comparePaths(a[0], b[0]))
+    const rankOfCode = new Uint32Array(ranked.length)
+    for (const [r, [, c]] of ranked.entries()) rankOfCode[c] = r
+    return s.codes.map((c) => rankOfCode[c] as number)
+  }
+  const idRank = rank(ids)
+  const pathRank = rank(paths)
+  const compare = (a: number, b: number): number =>
+    (idRank[a] as number) - (idRank[b] as number) ||
+    (start[a] as number) - (start[b] as number) ||
+    (pathRank[a] as number) - (pathRank[b] as number)
+  let sorted = true
+  for (let i = 1; i < start.length && sorted; i++) sorted = compare(i - 1, i) <= 0
+  if (sorted) return null
+  const order = new Uint32Array(start.length)
+  for (let i = 0; i < order.length; i++) order[i] = i
+  return order.sort((a, b) => compare(a, b) || a - b)
 }
 
 /**
@@ -321,8 +442,6 @@ export async function gcPartials(root: string, ledger: { readonly files: readonl
   if (removed.length > 0) await fsyncDir(dir)
   return removed
 }
-
-let tableCounter = 0
 
 async function withConnection<T>(options: PartialsDbOptions, f: (c: DuckDBConnection) => Promise<T>): Promise<T> {
   if (options.connection !== undefined) return f(options.connection)
