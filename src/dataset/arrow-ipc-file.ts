@@ -8,10 +8,10 @@
  * buffer per message and awaits a thread-pool read for each, which on the 10 M-row bench file cost
  * more wall and garbage-collector time than the accumulation itself.
  *
- * Columns returned by `next()` are views into the reused buffers: they are valid until the next
- * call. Dictionaries are read into their own buffers and stay valid.
+ * Columns returned by `next()` / `nextPrefetched()` are views into the reused buffers: they are
+ * valid until the next call. Dictionaries are read into their own buffers and stay valid.
  */
-import { readSync } from 'node:fs'
+import { read, readSync } from 'node:fs'
 import { CompressionType, type Data, type DataType, type Field, Message, type Schema, Vector } from 'apache-arrow'
 import { Footer } from 'apache-arrow/ipc/metadata/file'
 import type { RecordBatch as BatchHeader, BufferRegion } from 'apache-arrow/ipc/metadata/message'
@@ -50,8 +50,12 @@ export class IpcFileReader {
   private readonly dictionaries = new Map<number, Vector>()
   /** Batches read so far. */
   private nextIndex = 0
-  /** Metadata + body of the current batch. */
-  private block = new Uint8Array(0)
+  /** Metadata + body of the current batch and of the one read ahead, alternating. */
+  private readonly blocks: Uint8Array[] = [new Uint8Array(0), new Uint8Array(0)]
+  /** Which of `blocks` the next synchronous read goes to. */
+  private turn = 0
+  /** Read-ahead of batch `nextIndex`, started by the previous `nextPrefetched`. */
+  private pending: Promise<Uint8Array> | null = null
   /** Decompressed buffers of the current batch. */
   private arena = new Uint8Array(0)
 
@@ -81,18 +85,90 @@ export class IpcFileReader {
     return this.footer.numRecordBatches
   }
 
-  /** The next record batch, or null after the last one. */
+  /** The next record batch, or null after the last one (read synchronously, no read-ahead). */
   next(): IpcBatch | null {
+    if (this.pending !== null) throw new Error('next() called while a read-ahead is pending; use nextPrefetched()')
     if (this.nextIndex >= this.footer.numRecordBatches) return null
-    const block = this.footer.getRecordBatch(this.nextIndex++)
-    if (block === null) throw new Error(`record batch ${this.nextIndex - 1} missing from the footer`)
-    const total = block.metaDataLength + block.bodyLength
-    if (this.block.length < total) this.block = new Uint8Array(Math.ceil(total * 1.25))
-    const bytes = this.readInto(this.block, block.offset, total)
-    const message = decodeMessage(bytes.subarray(0, block.metaDataLength))
-    if (!message.isRecordBatch()) throw new Error(`block ${this.nextIndex - 1} is not a record batch`)
+    const index = this.nextIndex++
+    const block = this.blockAt(index)
+    const bytes = this.readInto(this.bufferFor(this.turn, block.total), block.offset, block.total)
+    return this.parse(index, block.meta, bytes)
+  }
+
+  /**
+   * The next record batch, or null after the last one, reading one batch ahead: the positioned read
+   * of the following batch runs in the libuv thread pool (into the other of two buffers) while the
+   * caller works on this one. Call `settle()` before closing the file.
+   */
+  async nextPrefetched(): Promise<IpcBatch | null> {
+    const count = this.footer.numRecordBatches
+    if (this.nextIndex >= count) return null
+    const index = this.nextIndex++
+    const block = this.blockAt(index)
+    let bytes: Uint8Array
+    if (this.pending === null) {
+      bytes = this.readInto(this.bufferFor(this.turn, block.total), block.offset, block.total)
+    } else {
+      const pending = this.pending
+      this.pending = null
+      bytes = await pending
+    }
+    this.turn ^= 1
+    if (this.nextIndex < count) {
+      const ahead = this.readAhead(this.nextIndex, this.turn)
+      // a read nobody awaits (the caller stopped early) must not surface as an unhandled rejection
+      ahead.catch(() => undefined)
+      this.pending = ahead
+    }
+    return this.parse(index, block.meta, bytes)
+  }
+
+  /** Waits for a read-ahead still in flight (its result or error is dropped). */
+  async settle(): Promise<void> {
+    const pending = this.pending
+    this.pending = null
+    if (pending !== null) await pending.catch(() => undefined)
+  }
+
+  private blockAt(index: number): { offset: number; meta: number; total: number } {
+    const block = this.footer.getRecordBatch(index)
+    if (block === null) throw new Error(`record batch ${index} missing from the footer`)
+    return { offset: block.offset, meta: block.metaDataLength, total: block.metaDataLength + block.bodyLength }
+  }
+
+  /** Buffer `which` (0 or 1), grown to at least `length` bytes. */
+  private bufferFor(which: number, length: number): Uint8Array {
+    let buffer = this.blocks[which] as Uint8Array
+    if (buffer.length < length) {
+      buffer = new Uint8Array(Math.ceil(length * 1.25))
+      this.blocks[which] = buffer
+    }
+    return buffer
+  }
+
+  private readAhead(index: number, which: number): Promise<Uint8Array> {
+    const { offset, total } = this.blockAt(index)
+    this.checkRange(offset, total)
+    const buffer = this.bufferFor(which, total)
+    return new Promise((resolve, reject) => {
+      const step = (done: number): void => {
+        read(this.fd, buffer, done, total - done, offset + done, (err, n) => {
+          if (err !== null) reject(err)
+          else if (n === 0) reject(new Error(`file ended at byte ${offset + done} while reading a block`))
+          else if (done + n < total) step(done + n)
+          else resolve(buffer.subarray(0, total))
+        })
+      }
+      step(0)
+    })
+  }
+
+  /** Decodes one record batch from its metadata + body bytes. */
+  private parse(index: number, metaLength: number, bytes: Uint8Array): IpcBatch {
+    const message = decodeMessage(bytes.subarray(0, metaLength))
+    if (!message.isRecordBatch()) throw new Error(`block ${index} is not a record batch`)
     const header = message.header()
-    const body = bytes.subarray(block.metaDataLength, total)
+    const body = bytes.subarray(metaLength)
     return { length: header.length, columns: this.load(header, body, this.schema.fields, true) }
   }
 
@@ -178,6 +254,12 @@ export class IpcFileReader {
     })
   }
 
+  private checkRange(position: number, length: number): void {
+    if (position < 0 || position + length > this.size) {
+      throw new Error(`block at byte ${position} (${length} bytes) runs past the end of the file (${this.size} bytes)`)
+    }
+  }
+
   /** Reads `length` bytes at `position` into a new buffer. */
   private readFresh(position: number, length: number): Uint8Array {
     return this.readInto(new Uint8Array(length), position, length)
@@ -185,9 +267,7 @@ export class IpcFileReader {
 
   /** Reads `length` bytes at `position` into the start of `buffer`; returns that part of it. */
   private readInto(buffer: Uint8Array, position: number, length: number): Uint8Array {
-    if (position < 0 || position + length > this.size) {
-      throw new Error(`block at byte ${position} (${length} bytes) runs past the end of the file (${this.size} bytes)`)
-    }
+    this.checkRange(position, length)
     let done = 0
     while (done < length) {
       const n = readSync(this.fd, buffer, done, length - done, position + done)

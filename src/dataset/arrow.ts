@@ -7,7 +7,6 @@
  */
 import { type FileHandle, open } from 'node:fs/promises'
 import { basename } from 'node:path'
-import { setImmediate } from 'node:timers/promises'
 import { type Data, DataType, type RecordBatch, RecordBatchReader, type Schema, type Vector } from 'apache-arrow'
 import { DataError, NoInputError } from '../errors.js'
 import { accumulateIndexed, MomentSlots, slotClearlyValid, slotMoments } from '../kernel/accumulate.js'
@@ -114,12 +113,9 @@ export async function readArrowPartials(
   }
 }
 
-/** The event loop gets a turn after this much reading (ms), so abort signals and timers still run. */
-const yieldEveryMs = 20
-
 /**
- * The file format through `IpcFileReader`: synchronous positioned reads into reused buffers, one
- * batch at a time, with a turn of the event loop every `yieldEveryMs`.
+ * The file format through `IpcFileReader`: positioned reads into two reused buffers, the next
+ * batch read in the thread pool while this one is accumulated.
  */
 async function readFileFormat(
   fd: number,
@@ -136,23 +132,22 @@ async function readFileFormat(
     throw corrupt(file.path, err)
   }
   const acc = new FileAccumulator(file, plan, schemaOf(ipc.schema, file.path))
-  let turn = performance.now()
-  for (;;) {
-    let batch: IpcBatch | null
-    try {
-      batch = ipc.next()
-    } catch (err) {
-      throw corrupt(file.path, err)
+  try {
+    for (;;) {
+      let batch: IpcBatch | null
+      try {
+        batch = await ipc.nextPrefetched()
+      } catch (err) {
+        throw corrupt(file.path, err)
+      }
+      if (batch === null) break
+      stats.skipped += acc.add(batch.length, batch.columns)
+      stats.rows += batch.length
+      options.onProgress?.(stats.rows)
+      options.signal?.throwIfAborted()
     }
-    if (batch === null) break
-    stats.skipped += acc.add(batch.length, batch.columns)
-    stats.rows += batch.length
-    options.onProgress?.(stats.rows)
-    if (performance.now() - turn >= yieldEveryMs) {
-      await setImmediate()
-      turn = performance.now()
-    }
-    options.signal?.throwIfAborted()
+  } finally {
+    await ipc.settle()
   }
   return acc.finish()
 }

@@ -83,6 +83,40 @@ describe('IpcFileReader', () => {
     },
   )
 
+  it('gives the same batches through nextPrefetched, which reads one batch ahead', async () => {
+    const path = join(dir, 'ahead.arrow')
+    await writeArrowFile(path, columns(5000), { format: 'file', batchRows: 700, compression: 'lz4' })
+    const fd = openSync(path, 'r')
+    try {
+      const reader = new IpcFileReader(fd, statSync(path).size)
+      const out: unknown[][] = reader.schema.fields.map(() => [])
+      for (let b = await reader.nextPrefetched(); b !== null; b = await reader.nextPrefetched()) {
+        b.columns.forEach((data, i) => {
+          out[i]?.push(...makeVector(data).toArray())
+        })
+      }
+      await reader.settle()
+      expect(out).toStrictEqual(await reference(path))
+    } finally {
+      closeSync(fd)
+    }
+  })
+
+  it('settles a read-ahead that nobody consumed, so the file can be closed', async () => {
+    const path = join(dir, 'stop.arrow')
+    await writeArrowFile(path, columns(1000), { format: 'file', batchRows: 300 })
+    const fd = openSync(path, 'r')
+    try {
+      const reader = new IpcFileReader(fd, statSync(path).size)
+      expect((await reader.nextPrefetched())?.length).toBe(300)
+      expect(() => reader.next()).toThrow(/read-ahead is pending/)
+      await reader.settle()
+      expect(reader.next()?.length).toBe(300)
+    } finally {
+      closeSync(fd)
+    }
+  })
+
   it('reports the batch count from the footer and null after the last batch', async () => {
     const path = join(dir, 'count.arrow')
     await writeArrowFile(path, columns(1000), { format: 'file', batchRows: 300 })
