@@ -174,6 +174,8 @@ function gatherPartials(partials: readonly PartialMoments[]): ColumnarRows {
     codes: new Uint32Array(count),
     dictionary: [] as string[],
     codeOf: new Map<string, number>(),
+    last: null as string | null,
+    lastCode: 0,
   })
   const paths = strings()
   const ids = strings()
@@ -214,19 +216,30 @@ function gatherPartials(partials: readonly PartialMoments[]): ColumnarRows {
   const lagNulls = new Uint8Array(count)
   let anyLagNull = false
   const code = (s: ReturnType<typeof strings>, text: string, i: number): void => {
-    let c = s.codeOf.get(text)
-    if (c === undefined) {
-      c = s.dictionary.length
-      s.codeOf.set(text, c)
-      s.dictionary.push(text)
+    if (text !== s.last) {
+      let c = s.codeOf.get(text)
+      if (c === undefined) {
+        c = s.dictionary.length
+        s.codeOf.set(text, c)
+        s.dictionary.push(text)
+      }
+      s.last = text
+      s.lastCode = c
     }
-    s.codes[i] = c
+    s.codes[i] = s.lastCode
   }
+  let lastKey: SeriesKey | null = null
+  let lastId = ''
   for (let i = 0; i < count; i++) {
     const p = partials[i] as PartialMoments
     const m = p.moments
     code(paths, p.file, i)
-    code(ids, seriesId(p.key), i)
+    // Partials of one series share their key array (the readers build one per series): its id is made once.
+    if (p.key !== lastKey) {
+      lastKey = p.key
+      lastId = seriesId(p.key)
+    }
+    code(ids, lastId, i)
     start[i] = wholeNumber(p.windowStartMs, 'window_start_ms')
     n[i] = wholeNumber(m.n, 'n')
     wSum[i] = m.wSum
