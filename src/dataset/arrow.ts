@@ -152,6 +152,20 @@ async function readFileFormat(
   return acc.finish()
 }
 
+/**
+ * out[i] = map[indices[i]] while every entry is known (≥ 0, the common case once a dictionary's
+ * values have been seen); returns false at the first unknown or out-of-range index, and the caller
+ * then redoes the batch on its general path.
+ */
+function gatherKnown(indices: Int32Array, map: Int32Array, out: Int32Array, length: number): boolean {
+  for (let i = 0; i < length; i++) {
+    const sid = map[indices[i] as number]
+    if (sid === undefined || sid < 0) return false
+    out[i] = sid
+  }
+  return true
+}
+
 function isNullAt(bitmap: Uint8Array, bit: number): boolean {
   return (((bitmap[bit >> 3] as number) >> (bit & 7)) & 1) === 0
 }
@@ -439,6 +453,7 @@ class FileAccumulator {
       this.seriesOfIndex.set(dictionary, map)
     }
     const validity = validityOf(data)
+    if (validity === null && indices instanceof Int32Array && gatherKnown(indices, map, out, length)) return true
     for (let i = 0; i < length; i++) {
       if (validity !== null && isNullAt(validity, data.offset + i)) {
         out[i] = this.seriesOfValueId(reader.nullId())
