@@ -75,7 +75,7 @@ export function validityOf(data: Data): Uint8Array | null {
 }
 
 /** View of 64-bit integer data as little-endian 32-bit word pairs (no copy). */
-function wordsOf(values: BigInt64Array | BigUint64Array, length: number): Int32Array {
+export function wordsOf(values: BigInt64Array | BigUint64Array, length: number): Int32Array {
   return new Int32Array(values.buffer, values.byteOffset, length * 2)
 }
 

@@ -9,7 +9,7 @@ import { type FileHandle, open } from 'node:fs/promises'
 import { basename } from 'node:path'
 import { type Data, DataType, type RecordBatch, RecordBatchReader, type Schema, type Vector } from 'apache-arrow'
 import { DataError, NoInputError } from '../errors.js'
-import { accumulateIndexed, MomentSlots, slotClearlyValid, slotMoments } from '../kernel/accumulate.js'
+import { accumulateIndexed, accumulateInt64, MomentSlots, slotClearlyValid, slotMoments } from '../kernel/accumulate.js'
 import { KeyValueIds } from '../kernel/key-intern.js'
 import { invalidMomentsReason } from '../kernel/moments.js'
 import { SlotIndex } from '../kernel/slot-index.js'
@@ -31,6 +31,7 @@ import {
   timeLayoutOf,
   toNumbers,
   validityOf,
+  wordsOf,
 } from './arrow-columns.js'
 import { hasFileMagic, type IpcBatch, IpcFileReader } from './arrow-ipc-file.js'
 import { registerArrowCodecs } from './codecs.js'
@@ -353,9 +354,30 @@ class FileAccumulator {
     const s = this.scratch
     const series = s.int(0, length)
     this.seriesOf(column, series, length)
+    const time = column(this.layout.x.index)
+    const ticks: unknown = time.values
+    if (
+      !this.slots.weighted &&
+      this.layout.x.layout.kind === 'int64' &&
+      this.cursor.int64Fast &&
+      (ticks instanceof BigInt64Array || ticks instanceof BigUint64Array)
+    ) {
+      // one pass: window, x, slot and moments per row
+      const y = toNumbers(column(this.layout.y), s, 1)
+      const words = wordsOf(ticks, length)
+      const timeValidity = validityOf(time)
+      return accumulateInt64(this.slots, this.index, this.cursor, {
+        length,
+        series,
+        words,
+        timeValidity,
+        timeBitOffset: time.offset,
+        y,
+      })
+    }
     const window = s.int(1, length)
     const x = s.float(0, length)
-    const unplaced = placeTimes(column(this.layout.x.index), this.layout.x.layout, this.cursor, s, window, x)
+    const unplaced = placeTimes(time, this.layout.x.layout, this.cursor, s, window, x)
     const y = toNumbers(column(this.layout.y), s, 1)
     const weight = this.layout.weight === null ? null : toNumbers(column(this.layout.weight), s, 2)
     const rows = { length, series, window, x, y, weight }

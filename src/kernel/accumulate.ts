@@ -9,6 +9,7 @@
  */
 import { emptyLag, type LagBlock, type Moments } from './moments.js'
 import type { SlotIndex } from './slot-index.js'
+import type { WindowCursor } from './window-x.js'
 
 /** Which optional blocks a slot store keeps. */
 export interface SlotOptions {
@@ -398,6 +399,147 @@ function indexedLagged(s: MomentSlots, index: SlotIndex, rows: IndexedRows): num
   }
   return bad
 }
+
+/** Rows of one batch with 64-bit integer times, as `accumulateInt64` consumes them. */
+export interface Int64TimedRows {
+  readonly length: number
+  /** Series id per row (ids below the count passed to `SlotIndex.reserveSeries`). */
+  readonly series: Int32Array
+  /** The time column as little-endian 32-bit word pairs (`words[2i]` low, `words[2i+1]` high). */
+  readonly words: Int32Array
+  /** Validity bitmap of the time column (null = no nulls) and the bit of row 0 in it. */
+  readonly timeValidity: Uint8Array | null
+  readonly timeBitOffset: number
+  readonly y: Float64Array
+}
+
+/**
+ * `WindowCursor.placeInt64` followed by `accumulateIndexed`, in one pass over the rows, for
+ * unweighted stores and cursors with `int64Fast` (the caller checks both): x is the exact tick
+ * difference from the window start as in `placeInt64` (statistics.md §1.2), then the Welford step
+ * (§1.3) and, with the lag block, the pair step (§5.2). Returns the rows not placed (null time)
+ * plus the rows rejected by validation.
+ */
+export function accumulateInt64(
+  slots: MomentSlots,
+  index: SlotIndex,
+  cursor: WindowCursor,
+  rows: Int64TimedRows,
+): number {
+  if (slots.weighted || !cursor.int64Fast)
+    throw new TypeError('accumulateInt64 needs an unweighted store and an int64Fast cursor')
+  const { length, series, words, timeValidity, timeBitOffset, y } = rows
+  const xMul = cursor.xMul
+  const xDiv = cursor.xDiv
+  const lagged = slots.trackLag
+  let cur = cursor.currentWindow
+  let startHi = cursor.currentStartHi
+  let startLo = cursor.currentStartLo
+  let span = cursor.currentSpan
+  let lastWindow = index.lastWindowBySeries
+  let lastSlot = index.lastSlotBySeries
+  let st = slots.core
+  let skipped = slots.skipped
+  let g = slots.lag
+  let inOrder = slots.inOrder
+  let bad = 0
+  for (let i = 0; i < length; i++) {
+    if (timeValidity !== null) {
+      const bit = timeBitOffset + i
+      if ((((timeValidity[bit >> 3] as number) >> (bit & 7)) & 1) === 0) {
+        bad++
+        continue
+      }
+    }
+    const hi = words[2 * i + 1] as number
+    const lo = (words[2 * i] as number) >>> 0
+    let d = (hi - startHi) * two32 + (lo - startLo)
+    if (!(d >= 0 && d < span)) {
+      cursor.enterTicks(hi, lo)
+      cur = cursor.currentWindow
+      startHi = cursor.currentStartHi
+      startLo = cursor.currentStartLo
+      span = cursor.currentSpan
+      d = (hi - startHi) * two32 + (lo - startLo)
+    }
+    const xi = (d * xMul) / xDiv
+    const sid = series[i] as number
+    let k: number
+    if (lastWindow[sid] === cur) k = lastSlot[sid] as number
+    else {
+      k = index.slotOf(sid, cur)
+      // a new slot may have grown the arrays
+      st = slots.core
+      skipped = slots.skipped
+      g = slots.lag
+      inOrder = slots.inOrder
+      lastWindow = index.lastWindowBySeries
+      lastSlot = index.lastSlotBySeries
+    }
+    const yi = y[i] as number
+    if (xi - xi !== 0 || yi - yi !== 0) {
+      skipped[k] = (skipped[k] as number) + 1
+      bad++
+      continue
+    }
+    const b = k * coreStride
+    const c = (st[b] as number) + 1
+    st[b] = c
+    const f = 1 / c
+    const ox = st[b + XM] as number
+    const oy = st[b + YM] as number
+    const dx = xi - ox
+    const dy = yi - oy
+    const mx = ox + dx * f
+    const my = oy + dy * f
+    st[b + XM] = mx
+    st[b + YM] = my
+    const ey = yi - my
+    st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
+    st[b + SYY] = (st[b + SYY] as number) + dy * ey
+    st[b + SXY] = (st[b + SXY] as number) + dx * ey
+    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    if (!lagged) continue
+    // the §5.2 pair step, as in `pairStep`
+    const l = k * lagStride
+    if (c === 1) {
+      g[l + FX] = xi
+      g[l + FY] = yi
+      g[l + LX] = xi
+      g[l + LY] = yi
+      continue
+    }
+    const px = g[l + LX] as number
+    const py = g[l + LY] as number
+    if (xi < px) inOrder[k] = 0
+    const p = (g[l + PAIRS] as number) + 1
+    g[l + PAIRS] = p
+    const opx = g[l + PXM] as number
+    const opy = g[l + PYM] as number
+    const ocx = g[l + CXM] as number
+    const ocy = g[l + CYM] as number
+    const dPx = px - opx
+    const dPy = py - opy
+    const dCx = xi - ocx
+    const dCy = yi - ocy
+    const pmx = opx + dPx / p
+    const pmy = opy + dPy / p
+    g[l + PXM] = pmx
+    g[l + PYM] = pmy
+    g[l + CXM] = ocx + dCx / p
+    g[l + CYM] = ocy + dCy / p
+    g[l + CYY1] = (g[l + CYY1] as number) + dCy * (py - pmy)
+    g[l + CYX1] = (g[l + CYX1] as number) + dCy * (px - pmx)
+    g[l + CXY1] = (g[l + CXY1] as number) + dCx * (py - pmy)
+    g[l + CXX1] = (g[l + CXX1] as number) + dCx * (px - pmx)
+    g[l + LX] = xi
+    g[l + LY] = yi
+  }
+  return bad
+}
+
+const two32 = 4294967296
 
 /** Weighted Welford step (West 1979), statistics.md §1.3/§1.5 (same operations as `addRow`). */
 function accumulateWeighted(

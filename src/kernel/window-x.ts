@@ -38,11 +38,18 @@ export class WindowCursor {
   /** Known window ids sorted by start, for the binary search on a cache miss. */
   private readonly sorted: number[] = []
   private readonly ticksPerMs: bigint
+  /**
+   * True when 64-bit times go through the exact 32-bit-pair arithmetic for every window of this
+   * spec (integer ticks per ms, every window shorter than 2^52 ticks): fused loops may then use
+   * `current*` and `enterTicks` instead of `placeInt64`.
+   */
+  readonly int64Fast: boolean
   private readonly tickNum: number
   private readonly tickDen: number
   /** x = ticks since start · xMul / xDiv. */
-  private readonly xMul: number
-  private readonly xDiv: number
+  /** x = ticks since the window start · xMul / xDiv (exactly this expression, for bit-identical x). */
+  readonly xMul: number
+  readonly xDiv: number
   private cur = -1
   // current window in ticks: start as exact 32-bit pair (int64 path) and as a number (number path)
   private startHi = 0
@@ -60,6 +67,38 @@ export class WindowCursor {
     this.ticksPerMs = t.num === 1 ? BigInt(t.den) : 0n
     this.xMul = t.num
     this.xDiv = msPerXUnit[xUnit] * t.den
+    // calendar windows last at most 31 days + 1 hour: 2.7e15 ns < 2^52
+    const longestMs = spec.kind === 'fixed' ? spec.sizeMs : 745 * 3_600_000
+    this.int64Fast = t.num === 1 && longestMs * t.den <= maxFastSpan
+  }
+
+  /** Id of the current window (−1 before the first row). */
+  get currentWindow(): number {
+    return this.cur
+  }
+
+  /** High 32-bit word of the current window's start in ticks (int64 path). */
+  get currentStartHi(): number {
+    return this.startHi
+  }
+
+  /** Low 32-bit word (unsigned) of the current window's start in ticks. */
+  get currentStartLo(): number {
+    return this.startLo
+  }
+
+  /** Length of the current window in ticks; −1 before the first row. */
+  get currentSpan(): number {
+    return this.cur < 0 ? -1 : this.spanT
+  }
+
+  /**
+   * Makes the window holding the 64-bit tick value (`hi`, `lo` words) current, registering it when
+   * new; the slow path of `placeInt64` (BigInt floor division to epoch ms, then the window lookup).
+   */
+  enterTicks(hi: number, lo: number): void {
+    const t = (BigInt(hi) << 32n) + BigInt(lo)
+    this.enter(this.windowIdAt(Number(floorDiv(t, this.ticksPerMs))))
   }
 
   /** Number of windows seen so far. */

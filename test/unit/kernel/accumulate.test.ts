@@ -1,6 +1,7 @@
 import { describe, expect, it } from 'vitest'
 import {
   accumulateIndexed,
+  accumulateInt64,
   accumulateRows,
   MomentSlots,
   type RowColumns,
@@ -9,6 +10,8 @@ import {
 } from '../../../src/kernel/accumulate.js'
 import { addRow, emptyMoments, invalidMomentsReason, type Moments } from '../../../src/kernel/moments.js'
 import { SlotIndex } from '../../../src/kernel/slot-index.js'
+import { parseWindow } from '../../../src/kernel/window.js'
+import { type TickUnit, WindowCursor } from '../../../src/kernel/window-x.js'
 import { A, B, C, momentsOf } from '../../fixtures/worked-example.js'
 
 /** Rows of one slot (slot id 0). */
@@ -266,3 +269,95 @@ describe('slotClearlyValid', () => {
     expect(invalidMomentsReason(slotMoments(s, 0))).toMatch(/syy is not finite/)
   })
 })
+
+/** Seeded invented rows with int64 times: rising ticks with jitter, some null times, some NaN y. */
+function timedRows(rows: number, series: number, tick: TickUnit, seed: number) {
+  const rand = lcg(seed)
+  const perMs = { ms: 1n, us: 1000n, ns: 1_000_000n, s: 1n, day: 1n }[tick]
+  const ticks = new BigInt64Array(rows)
+  const valid = new Uint8Array(Math.ceil(rows / 8))
+  const s = new Int32Array(rows)
+  const y = new Float64Array(rows)
+  const startMs = 1_796_083_200_000n // 2026-12-01T00:00Z
+  for (let i = 0; i < rows; i++) {
+    // about 6 hours in all, a little out of order, with sub-millisecond parts
+    ticks[i] =
+      (startMs + BigInt(Math.floor(i * 360 + rand() * 50_000))) * perMs + BigInt(Math.floor(rand() * Number(perMs)))
+    if (rand() > 0.01) valid[i >> 3] = (valid[i >> 3] as number) | (1 << (i & 7))
+    s[i] = Math.floor(rand() * series)
+    y[i] = rand() < 0.02 ? Number.NaN : 4 + rand()
+  }
+  return { ticks, valid, s, y }
+}
+
+describe('accumulateInt64', () => {
+  it.each([
+    ['ms, plain', 'ms', false],
+    ['ns, lag block', 'ns', true],
+    ['us, lag block', 'us', true],
+  ] as const)('gives bit-identical slots and counts to placeInt64 + accumulateIndexed (%s)', (_, tick, trackLag) => {
+    const rows = 60_000
+    const t = timedRows(rows, 500, tick, 4242)
+    const words = new Int32Array(t.ticks.buffer)
+    const fusedSlots = new MomentSlots({ weighted: false, trackLag })
+    const fusedIndex = new SlotIndex(fusedSlots)
+    fusedIndex.reserveSeries(500)
+    const fusedCursor = new WindowCursor(parseWindow('1h') ?? fail(), 'minute', tick)
+    // two batches, so the cursor and the slots carry over from one call to the next
+    const half = rows / 2
+    const bad =
+      accumulateInt64(fusedSlots, fusedIndex, fusedCursor, {
+        length: half,
+        series: t.s,
+        words,
+        timeValidity: t.valid,
+        timeBitOffset: 0,
+        y: t.y,
+      }) +
+      accumulateInt64(fusedSlots, fusedIndex, fusedCursor, {
+        length: half,
+        series: t.s.subarray(half),
+        words: words.subarray(2 * half),
+        timeValidity: t.valid.subarray(half / 8),
+        timeBitOffset: 0,
+        y: t.y.subarray(half),
+      })
+    const slots = new MomentSlots({ weighted: false, trackLag })
+    const index = new SlotIndex(slots)
+    index.reserveSeries(500)
+    const cursor = new WindowCursor(parseWindow('1h') ?? fail(), 'minute', tick)
+    const window = new Int32Array(rows)
+    const x = new Float64Array(rows)
+    const unplaced = cursor.placeInt64(words, rows, t.valid, 0, window, x)
+    const rejected = accumulateIndexed(
+      slots,
+      index,
+      { length: rows, series: t.s, window, x, y: t.y, weight: null },
+      new Int32Array(rows),
+    )
+    expect(bad).toBe(unplaced + rejected)
+    expect(unplaced).toBeGreaterThan(300)
+    expect(fusedSlots.size).toBe(slots.size)
+    expect(slots.size).toBeGreaterThan(1024)
+    for (let k = 0; k < slots.size; k++) expect(slotMoments(fusedSlots, k)).toStrictEqual(slotMoments(slots, k))
+    expect(fusedCursor.windowStartMs).toStrictEqual(cursor.windowStartMs)
+  })
+
+  it('throws a TypeError for a weighted store', () => {
+    const slots = new MomentSlots({ weighted: true, trackLag: false })
+    const cursor = new WindowCursor(parseWindow('1h') ?? fail(), 'minute', 'ms')
+    const rows = {
+      length: 0,
+      series: new Int32Array(0),
+      words: new Int32Array(0),
+      timeValidity: null,
+      timeBitOffset: 0,
+      y: new Float64Array(0),
+    }
+    expect(() => accumulateInt64(slots, new SlotIndex(slots), cursor, rows)).toThrow(/unweighted store/)
+  })
+})
+
+function fail(): never {
+  throw new Error('bad window spec')
+}

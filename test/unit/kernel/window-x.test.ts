@@ -134,3 +134,14 @@ describe('WindowCursor.placeNumbers', () => {
     expect([...x]).toEqual([3, 0])
   })
 })
+
+describe('WindowCursor.int64Fast', () => {
+  it('is true for integer ticks per ms and windows below 2^52 ticks, false otherwise', () => {
+    expect(new WindowCursor(spec('1h'), 'minute', 'ms').int64Fast).toBe(true)
+    expect(new WindowCursor(spec('month', 'Europe/Berlin'), 'hour', 'ns').int64Fast).toBe(true)
+    // 8 weeks of nanoseconds is 4.8e15 ticks, beyond 2^52 ≈ 4.5e15
+    expect(new WindowCursor(spec('8w'), 'day', 'ns').int64Fast).toBe(false)
+    // seconds are not a whole number of ticks per ms: the number path handles them
+    expect(new WindowCursor(spec('1h'), 'minute', 's').int64Fast).toBe(false)
+  })
+})
