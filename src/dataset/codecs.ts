@@ -1,11 +1,13 @@
 /**
  * Body-compression codecs for Arrow IPC: apache-arrow 21 decodes LZ4_FRAME and ZSTD buffers only
- * through codecs registered in its `compressionRegistry`; Node 20 has neither, so we plug in the
- * pure-JS `lz4js` (frame format) and `fzstd` decoders (io-evaluation.md, Arrow IPC and Gotchas).
+ * through codecs registered in its `compressionRegistry`; Node 20 has neither, so we plug in our
+ * LZ4 frame decoder (`lz4-frame.ts`) and the pure-JS `fzstd` decoder (io-evaluation.md, Arrow IPC
+ * and Gotchas). `lz4js` stays the encoder test fixtures write LZ4 bodies with.
  */
 import { createRequire } from 'node:module'
 import { CompressionType, compressionRegistry } from 'apache-arrow'
 import { decompress as zstdDecompress } from 'fzstd'
+import { decodeLz4FrameInto, lz4FrameBound } from './lz4-frame.js'
 
 interface Lz4js {
   decompress(src: Uint8Array, maxSize?: number): Uint8Array
@@ -40,9 +42,15 @@ export function aligned8(bytes: Uint8Array): Uint8Array {
   return bytes.byteOffset % 8 === 0 ? bytes : bytes.slice()
 }
 
-/** Decodes one LZ4-frame-compressed IPC body buffer. */
+/**
+ * Decodes one LZ4-frame-compressed IPC body buffer (apache-arrow's registry path: the stream
+ * format). Our decoder writes into a buffer of the frame's bound and returns an exact-length copy
+ * when the bound was larger (lz4js frames declare 4 MB blocks), so no batch keeps a 4 MB buffer.
+ */
 export function decodeLz4Frame(data: Uint8Array): Uint8Array {
-  return aligned8(lz4.decompress(data))
+  const out = new Uint8Array(lz4FrameBound(data))
+  const n = decodeLz4FrameInto(data, out)
+  return n === out.length ? out : out.slice(0, n)
 }
 
 /** Decodes one ZSTD-compressed IPC body buffer. */
