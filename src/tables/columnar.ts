@@ -330,15 +330,20 @@ function fillChunk(output: DuckDBDataChunk, plan: ColumnsPlan, start: number, co
     const vector = output.getColumnVector(k)
     // Values first, nulls after: a vector without nulls sets no validity bits per value.
     if (type === 'BOOLEAN') {
-      for (let i = 0; i < count; i++)
+      for (let i = 0; i < count; i++) {
         vector.setItem(i, data[order === null ? start + i : (order[start + i] as number)] === 1)
+      }
     } else if (type === 'VARCHAR' && !asCodes) {
       for (let i = 0; i < count; i++) {
         vector.setItem(i, dictionary[data[order === null ? start + i : (order[start + i] as number)] as number] ?? null)
       }
     } else {
-      for (let i = 0; i < count; i++)
-        vector.setItem(i, data[order === null ? start + i : (order[start + i] as number)] as number)
+      const items = itemsOf(vector, asCodes, count)
+      if (items !== null && order === null) items.set(data.subarray(start, start + count))
+      else if (items !== null) for (let i = 0; i < count; i++) items[i] = data[order?.[start + i] as number] as number
+      else
+        for (let i = 0; i < count; i++)
+          vector.setItem(i, data[order === null ? start + i : (order[start + i] as number)] as number)
     }
     if (nulls !== null) {
       for (let i = 0; i < count; i++) {
@@ -347,6 +352,18 @@ function fillChunk(output: DuckDBDataChunk, plan: ColumnsPlan, start: number, co
     }
     vector.flush()
   }
+}
+
+/**
+ * The typed array in which a DOUBLE or INTEGER vector of @duckdb/node-api keeps its values until `flush()` copies
+ * them into DuckDB, or null when the vector has none of that kind and length (the caller then uses `setItem`). Why:
+ * `setItem` per value is a call and a validity check each, and runs on cold JIT in a CLI process; a bulk `set` is a
+ * copy. The field is not public API, hence the check of its type and length before any use.
+ */
+function itemsOf(vector: DuckDBVector, codes: boolean, count: number): Float64Array | Int32Array | null {
+  const items = (vector as unknown as { readonly items?: unknown }).items
+  const fits = codes ? items instanceof Int32Array : items instanceof Float64Array
+  return fits && (items as Float64Array | Int32Array).length === count ? (items as Float64Array | Int32Array) : null
 }
 
 /**

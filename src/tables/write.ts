@@ -247,8 +247,9 @@ function stageRows(
     }
   }
   const sortKeys = [days, ...orderColumns(table, keyColumns).map((name) => sortKeyOf(byName.get(name)))]
-  const order = sortedOrder(rowCount, sortKeys)
-  checkIdentity(table, keyColumns, rowCount, keyOf, byName, sortKeys, order)
+  const sorted = sortedOrder(rowCount, sortKeys)
+  const order = sorted.order
+  checkIdentity(table, keyColumns, rowCount, keyOf, byName, sortKeys, sorted)
   // Ranges of positions per day, in day (= partition name) order.
   const ranges: [number, number][] = []
   const rangeOf = new Map<string, number>()
@@ -343,19 +344,35 @@ function compareRows(sortKeys: readonly Float64Array[], a: number, b: number): n
   return 0
 }
 
-/** The positions of the rows sorted on the sort keys (stable), or null when they are in order already. */
-function sortedOrder(rowCount: number, sortKeys: readonly Float64Array[]): Uint32Array | null {
-  let sorted = true
-  for (let i = 1; i < rowCount && sorted; i++) sorted = compareRows(sortKeys, i - 1, i) <= 0
-  if (sorted) return null
+/**
+ * The positions of the rows sorted on the sort keys (stable; null when they are in order already), and whether two
+ * neighbours in that order are equal on every sort key (possible repeats of an identity).
+ */
+function sortedOrder(
+  rowCount: number,
+  sortKeys: readonly Float64Array[],
+): { order: Uint32Array | null; ties: boolean } {
+  let ties = false
+  let i = 1
+  for (; i < rowCount; i++) {
+    const d = compareRows(sortKeys, i - 1, i)
+    if (d > 0) break
+    if (d === 0) ties = true
+  }
+  if (i >= rowCount) return { order: null, ties }
   const order = new Uint32Array(rowCount)
-  for (let i = 0; i < rowCount; i++) order[i] = i
-  return order.sort((a, b) => compareRows(sortKeys, a, b) || a - b)
+  for (let p = 0; p < rowCount; p++) order[p] = p
+  order.sort((a, b) => compareRows(sortKeys, a, b) || a - b)
+  ties = false
+  for (let p = 1; p < rowCount && !ties; p++)
+    ties = compareRows(sortKeys, order[p - 1] as number, order[p] as number) === 0
+  return { order, ties }
 }
 
 /**
  * Throws for the first row (in input order) whose identity an earlier row has. Fits and shifts are identified by
- * their order (key columns, window_start), so repeats sit side by side once sorted; runs by run_id.
+ * their order (key columns, window_start), so repeats sit side by side once sorted (`ties` says whether any pair
+ * does); runs by run_id.
  */
 function checkIdentity(
   table: TableName,
@@ -364,11 +381,12 @@ function checkIdentity(
   keyOf: (row: number) => SeriesKey | null,
   byName: ReadonlyMap<string, GatheredColumn>,
   sortKeys: readonly Float64Array[],
-  order: Uint32Array | null,
+  { order, ties }: { order: Uint32Array | null; ties: boolean },
 ): void {
   const spec = tableSpecs[table]
   let repeat = Number.POSITIVE_INFINITY
   if (spec.identity.join() === spec.order.join()) {
+    if (!ties) return
     // In a group of equal rows, every row but the first in input order repeats an identity.
     const at = (p: number): number => (order === null ? p : (order[p] as number))
     for (let p = 1; p < rowCount; p++) {
