@@ -1,9 +1,11 @@
 /**
  * Arrow IPC → partial moments per (file, series, window) (design.md, "Arrow IPC → moments: our own
- * kernel"). Reads one record batch at a time through apache-arrow's `RecordBatchReader` (file and
- * stream formats, detected by magic bytes; LZ4 and ZSTD bodies through registered codecs), turns
- * each batch's columns into typed arrays and feeds the kernel hot loop. Memory grows with
- * series × windows, never with rows.
+ * kernel"). Reads one record batch at a time: the file format (detected by its magic bytes) through
+ * our `IpcFileReader` (reused buffers, one batch read ahead), the stream format through
+ * apache-arrow's `RecordBatchReader` (LZ4 and ZSTD bodies through registered codecs). Each batch's
+ * columns become typed arrays for the kernel hot loop; with int64 times and no weights, window, x,
+ * slot and moments are done in one pass (`accumulateInt64`). Memory grows with series × windows
+ * and the largest batch, never with the number of rows.
  */
 import { type FileHandle, open } from 'node:fs/promises'
 import { basename } from 'node:path'

@@ -1,13 +1,15 @@
 /**
  * Issue 2, Arrow in-process figure: read + accumulate one Arrow IPC file with the built reader
  * (`readArrowPartials` from dist/dataset/arrow.js) several times in one fresh process and print the
- * time of each pass. run.ts spawns it under /usr/bin/time so the process's peak RSS is known.
+ * time of each pass (wall and process CPU) and the 1-minute load average at the start. run.ts
+ * spawns it under /usr/bin/time so the process's peak RSS is known.
  *
  *   node test/bench/arrow-read.mjs <file.arrow> <serial: off|ar1> <reps>
  *
  * Plain JavaScript so it runs on `node` alone, like the built CLI. Prints one JSON line.
  */
 import { stat } from 'node:fs/promises'
+import { loadavg } from 'node:os'
 import path from 'node:path'
 import { fileURLToPath, pathToFileURL } from 'node:url'
 
@@ -33,6 +35,7 @@ if (file === undefined) {
   const plan = momentsPlanOf(config)
   const st = await stat(file)
   const source = { path: path.resolve(file), kind: 'arrow-file', size: st.size, mtimeMs: st.mtimeMs, hive: {} }
+  const load1 = loadavg()[0]
   const passes = []
   for (let i = 0; i < Number(repsArg); i++) {
     const cpu0 = process.cpuUsage()
@@ -44,5 +47,5 @@ if (file === undefined) {
     const n = r.partials.reduce((a, p) => a + p.moments.n, 0)
     passes.push({ ms, cpuMs, rows: r.stats.rows, skipped: r.stats.skipped, partials: r.partials.length, pointsUsed: n })
   }
-  console.log(JSON.stringify({ importMs, trackLag: plan.trackLag, passes }))
+  console.log(JSON.stringify({ importMs, trackLag: plan.trackLag, load1, passes }))
 }
