@@ -6,71 +6,144 @@
 /** `bh`: Benjamini–Hochberg; `by`: Benjamini–Yekutieli (q scaled by Σ 1/i). */
 export type FdrMethod = 'bh' | 'by'
 
-/** Below this size a comparison sort is cheaper than the radix passes. */
-const RADIX_MIN = 2048
-/** 8-bit digits: 256 buckets keep the scatter writes cache-friendly; 4 passes per 32-bit word. */
-const DIGIT_BITS = 8
-const DIGIT_MASK = (1 << DIGIT_BITS) - 1
-const BUCKETS = 1 << DIGIT_BITS
-const PASSES = 64 / DIGIT_BITS
-
 const LITTLE_ENDIAN = new Uint8Array(new Uint32Array([1]).buffer)[0] === 1
 
+/** IEEE-754 bit pattern of −0 (high word; the low word is 0). */
+const NEGATIVE_ZERO_HI = 0x80000000
+
 /**
- * Ascending order of non-negative doubles as indices (stable: ties keep input order).
- * Non-negative IEEE-754 doubles order like their bit patterns read as unsigned 64-bit integers, so a
- * least-significant-digit radix sort on eight 8-bit digits sorts them in linear time.
+ * The ascending order of selected doubles, packed for one native sort (statistics.md §4.2).
+ *
+ * Non-negative doubles order like their bit patterns read as unsigned 64-bit integers. Each selected
+ * value i becomes one 64-bit key: its bit pattern with the lowest `b` bits replaced by i, where
+ * b = ⌈log2(values.length)⌉ (20 bits for 10⁶ values). One `BigUint64Array.prototype.sort` (native,
+ * no comparator: V8 sorts the raw integers) then orders by value and, among equal values, by index,
+ * and the index is read back from the key's low word; no BigInt is ever created.
+ *
+ * Dropping b low bits can only merge values that differ by less than 2^−(52−b) relative; runs of keys
+ * whose kept bits are equal are checked afterwards and re-sorted on the full low word when needed,
+ * so the order is exact. −0 sorts as +0. 8 bytes per selected value.
+ *
+ * Returns the sorted keys as 32-bit words (key r: low word `2r`, high word `2r + 1`) and the index mask.
+ */
+function sortedKeys(
+  values: Float64Array,
+  include: Uint8Array | null,
+  count: number,
+): { readonly words: Uint32Array; readonly indexMask: number } {
+  const total = values.length
+  const indexBits = 32 - Math.clz32(Math.max(total - 1, 0))
+  const indexMask = indexBits === 32 ? 0xffffffff : 2 ** indexBits - 1
+  const keepMask = ~indexMask >>> 0
+  const keys = new BigUint64Array(count)
+  const words = new Uint32Array(keys.buffer)
+  if (!LITTLE_ENDIAN) return comparisonSortedKeys(values, include, words)
+  const v = new Uint32Array(values.buffer, values.byteOffset, 2 * total)
+  for (let i = 0, r = 0; i < total; i++) {
+    if (include !== null && include[i] === 0) continue
+    const lo = v[2 * i] as number
+    const hi = v[2 * i + 1] as number
+    words[2 * r] = ((lo & keepMask) | i) >>> 0
+    words[2 * r + 1] = hi === NEGATIVE_ZERO_HI && lo === 0 ? 0 : hi
+    r++
+  }
+  keys.sort()
+  // Keys whose kept bits tie may be out of order in the dropped bits: fix those runs.
+  let start = 0
+  for (let r = 1; r <= count; r++) {
+    if (
+      r < count &&
+      words[2 * r + 1] === words[2 * r - 1] &&
+      (((words[2 * r] as number) ^ (words[2 * r - 2] as number)) & keepMask) === 0
+    ) {
+      continue
+    }
+    if (r - start > 1) fixRun(words, v, indexMask, start, r)
+    start = r
+  }
+  return { words, indexMask }
+}
+
+/** Big-endian fallback of `sortedKeys`: a comparison sort, the index in the whole low word. */
+function comparisonSortedKeys(
+  values: Float64Array,
+  include: Uint8Array | null,
+  words: Uint32Array,
+): { readonly words: Uint32Array; readonly indexMask: number } {
+  const idx: number[] = []
+  for (let i = 0; i < values.length; i++) if (include === null || include[i] !== 0) idx.push(i)
+  // + 0: −0 sorts as +0, like the key path.
+  idx.sort((a, b) => (values[a] as number) + 0 - ((values[b] as number) + 0) || a - b)
+  for (let r = 0; r < idx.length; r++) words[2 * r] = idx[r] as number
+  return { words, indexMask: 0xffffffff }
+}
+
+/** Re-sorts keys start…end−1 (equal high words and kept bits) by the full low word of their value, then index. */
+function fixRun(words: Uint32Array, v: Uint32Array, indexMask: number, start: number, end: number): void {
+  let sorted = true
+  let prev = v[2 * ((words[2 * start] as number) & indexMask)] as number
+  for (let r = start + 1; r < end && sorted; r++) {
+    const lo = v[2 * ((words[2 * r] as number) & indexMask)] as number
+    if (lo < prev) sorted = false
+    prev = lo
+  }
+  if (sorted) return
+  const kept = ((words[2 * start] as number) & ~indexMask) >>> 0
+  const idx: number[] = []
+  for (let r = start; r < end; r++) idx.push(((words[2 * r] as number) & indexMask) >>> 0)
+  idx.sort((a, b) => (v[2 * a] as number) - (v[2 * b] as number) || a - b)
+  for (let r = start; r < end; r++) words[2 * r] = (kept | (idx[r - start] as number)) >>> 0
+}
+
+/**
+ * Ascending order of non-negative doubles as indices (stable: ties keep input order; −0 counts as +0).
+ * One native sort of packed (value, index) keys, see `sortedKeys`; O(m log m), 12 bytes per value.
  */
 export function sortOrderNonNegative(values: Float64Array): Uint32Array {
   const m = values.length
   const order = new Uint32Array(m)
-  for (let i = 0; i < m; i++) order[i] = i
-  if (m < RADIX_MIN || !LITTLE_ENDIAN) {
-    return order.sort((a, b) => (values[a] as number) - (values[b] as number) || a - b)
+  const { words, indexMask } = sortedKeys(values, null, m)
+  for (let r = 0; r < m; r++) order[r] = ((words[2 * r] as number) & indexMask) >>> 0
+  return order
+}
+
+/**
+ * The step-up pass of statistics.md §4.2 over sorted keys (`sortedKeys`): one backward pass with a
+ * running minimum, `q_(r) = min(running, c·m·p_(r)/r)`, written into `out` at each key's index.
+ */
+function stepUp(
+  p: Float64Array,
+  method: FdrMethod,
+  sorted: { readonly words: Uint32Array; readonly indexMask: number },
+  out: Float64Array,
+): void {
+  const { words, indexMask } = sorted
+  const m = words.length / 2
+  let c = 1
+  if (method === 'by') {
+    c = 0
+    for (let i = m; i >= 1; i--) c += 1 / i
   }
-  // +0 for −0 so the sign bit does not put zeros last.
-  const copy = new Float64Array(m)
-  for (let i = 0; i < m; i++) copy[i] = (values[i] as number) + 0
-  const words = new Uint32Array(copy.buffer)
-  // Keys travel with the indices so every pass reads sequentially.
-  let lo = new Uint32Array(m)
-  let hi = new Uint32Array(m)
-  for (let i = 0; i < m; i++) {
-    lo[i] = words[2 * i] as number
-    hi[i] = words[2 * i + 1] as number
+  let running = 1
+  for (let r = m - 1; r >= 0; r--) {
+    const i = ((words[2 * r] as number) & indexMask) >>> 0
+    const v = (c * m * (p[i] as number)) / (r + 1)
+    if (v < running) running = v
+    out[i] = running
   }
-  let idx = order
-  let lo2 = new Uint32Array(m)
-  let hi2 = new Uint32Array(m)
-  let idx2 = new Uint32Array(m)
-  const counts = new Uint32Array(BUCKETS)
-  for (let pass = 0; pass < PASSES; pass++) {
-    const key = pass < PASSES / 2 ? lo : hi
-    const shift = (pass % (PASSES / 2)) * DIGIT_BITS
-    counts.fill(0)
-    for (let i = 0; i < m; i++) {
-      const d = ((key[i] as number) >>> shift) & DIGIT_MASK
-      counts[d] = (counts[d] as number) + 1
-    }
-    let sum = 0
-    for (let d = 0; d < BUCKETS; d++) {
-      const c = counts[d] as number
-      counts[d] = sum
-      sum += c
-    }
-    for (let i = 0; i < m; i++) {
-      const d = ((key[i] as number) >>> shift) & DIGIT_MASK
-      const pos = counts[d] as number
-      counts[d] = pos + 1
-      lo2[pos] = lo[i] as number
-      hi2[pos] = hi[i] as number
-      idx2[pos] = idx[i] as number
-    }
-    ;[lo, lo2] = [lo2, lo]
-    ;[hi, hi2] = [hi2, hi]
-    ;[idx, idx2] = [idx2, idx]
-  }
-  return idx
+}
+
+/**
+ * q-values of the selected p-values, among themselves (statistics.md §4.2): for every i with
+ * `include[i] !== 0`, `out[i]` = the q-value of `p[i]` in the family of the m selected p-values; the
+ * other entries of `out` are left as they are. Same rule and the same numbers as `qValues` on the
+ * selected p-values, without copying them out and the q-values back: a family of 10⁶ series needs
+ * only 8 bytes per selected series beyond its own columns. `include` and `p` have the same length.
+ */
+export function fillQValues(p: Float64Array, include: Uint8Array, method: FdrMethod, out: Float64Array): void {
+  let m = 0
+  for (let i = 0; i < include.length; i++) if (include[i] !== 0) m++
+  if (m > 0) stepUp(p, method, sortedKeys(p, include, m), out)
 }
 
 /**
@@ -79,7 +152,7 @@ export function sortOrderNonNegative(values: Float64Array): Uint32Array {
  * c = Σ_{i=1..m} 1/i (BY). A series is flagged at level q ⇔ its q-value ≤ q, which is the BH step-up
  * rule. Tied p-values get equal q-values, so the result does not depend on the input order.
  *
- * One linear-time radix sort and one pass: 10⁶ p-values take tens of milliseconds. p-values must lie
+ * One native sort of packed keys and one pass: 10⁶ p-values take about 0.1–0.2 s. p-values must lie
  * in [0, 1]; leave untested series out (§4.2), NaN is not a p-value.
  */
 export function qValues(pValues: ArrayLike<number>, method: FdrMethod = 'bh'): Float64Array {
@@ -87,19 +160,7 @@ export function qValues(pValues: ArrayLike<number>, method: FdrMethod = 'bh'): F
   const out = new Float64Array(m)
   if (m === 0) return out
   const p = pValues instanceof Float64Array ? pValues : Float64Array.from(pValues)
-  const order = sortOrderNonNegative(p)
-  let c = 1
-  if (method === 'by') {
-    c = 0
-    for (let i = m; i >= 1; i--) c += 1 / i
-  }
-  let running = 1
-  for (let r = m - 1; r >= 0; r--) {
-    const i = order[r] as number
-    const v = (c * m * (p[i] as number)) / (r + 1)
-    if (v < running) running = v
-    out[i] = running
-  }
+  stepUp(p, method, sortedKeys(p, null, m), out)
   return out
 }
 

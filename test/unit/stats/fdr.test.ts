@@ -1,5 +1,11 @@
 import { describe, expect, it } from 'vitest'
-import { benjaminiHochberg, benjaminiYekutieli, qValues, sortOrderNonNegative } from '../../../src/stats/fdr.js'
+import {
+  benjaminiHochberg,
+  benjaminiYekutieli,
+  fillQValues,
+  qValues,
+  sortOrderNonNegative,
+} from '../../../src/stats/fdr.js'
 import { mulberry32 } from '../../helpers/prng.js'
 
 /** Straightforward reference: comparison sort, then the step-up minimum of statistics.md §4.2. */
@@ -67,5 +73,85 @@ describe('sortOrderNonNegative', () => {
       const b = order[k] as number
       expect((v[a] as number) < (v[b] as number) || ((v[a] as number) === (v[b] as number) && a < b)).toBe(true)
     }
+  })
+})
+
+/** Doubles that agree in all but their lowest mantissa bits (the bits the packed sort key drops). */
+function nearTies(count: number, seed: number): number[] {
+  const r = mulberry32(seed)
+  const base = new Float64Array([0.0123456789])
+  const words = new Uint32Array(base.buffer)
+  const out: number[] = []
+  for (let i = 0; i < count; i++) {
+    const v = new Float64Array(base)
+    const w = new Uint32Array(v.buffer)
+    w[0] = ((words[0] as number) & ~0xfffff) | Math.floor(r() * 0x100000)
+    out.push(v[0] as number)
+  }
+  return out
+}
+
+describe('fillQValues', () => {
+  it('gives the selected p-values the q-values of qValues on them alone and leaves the rest untouched', () => {
+    const r = mulberry32(4)
+    const p = new Float64Array(30_000)
+    const include = new Uint8Array(p.length)
+    for (let i = 0; i < p.length; i++) {
+      p[i] = i % 5 === 0 ? Math.round(r() * 50) / 50 : r() ** 2
+      include[i] = r() < 0.8 ? 1 : 0
+    }
+    const out = new Float64Array(p.length).fill(-1)
+    fillQValues(p, include, 'bh', out)
+    const selected = Array.from(p).filter((_, i) => include[i] === 1)
+    const expected = referenceQ(selected)
+    let j = 0
+    for (let i = 0; i < p.length; i++) {
+      if (include[i] === 1) expect(out[i]).toBe(expected[j++])
+      else expect(out[i]).toBe(-1)
+    }
+  })
+
+  it('scales by Σ 1/i over the selected count for BY', () => {
+    const p = new Float64Array([0.001, 0.5, 0.004, 0.03, 0.2])
+    const include = new Uint8Array([1, 0, 1, 1, 1])
+    const out = new Float64Array(5).fill(Number.NaN)
+    fillQValues(p, include, 'by', out)
+    const c = 1 + 1 / 2 + 1 / 3 + 1 / 4
+    const q = referenceQ([0.001, 0.004, 0.03, 0.2], c).map((v) => Math.min(v, 1))
+    expect([out[0], out[2], out[3], out[4]]).toEqual(q)
+    expect(out[1]).toBeNaN()
+  })
+
+  it('writes nothing when no p-value is selected', () => {
+    const out = new Float64Array(3).fill(7)
+    fillQValues(new Float64Array([0.1, 0.2, 0.3]), new Uint8Array(3), 'bh', out)
+    expect(Array.from(out)).toEqual([7, 7, 7])
+  })
+})
+
+describe('sortOrderNonNegative on values that differ only in their lowest bits', () => {
+  it('orders them exactly, ties by input order', () => {
+    // 2^20 + 5 values: the key keeps only the bits above the lowest 21, so the near-ties below all
+    // share one key prefix and must be put in order by the full value.
+    const values = new Float64Array(2 ** 20 + 5)
+    const r = mulberry32(5)
+    for (let i = 0; i < values.length; i++) values[i] = r()
+    const ties = nearTies(2000, 6)
+    for (let j = 0; j < ties.length; j++) values[j * 500] = ties[j] as number
+    values[1] = ties[3] as number
+    const order = sortOrderNonNegative(values)
+    let firstWrong = -1
+    for (let k = 1; k < order.length && firstWrong < 0; k++) {
+      const a = values[order[k - 1] as number] as number
+      const b = values[order[k] as number] as number
+      if (!(a < b || (a === b && (order[k - 1] as number) < (order[k] as number)))) firstWrong = k
+    }
+    expect(firstWrong).toBe(-1)
+    expect(new Set(order).size).toBe(values.length)
+  })
+
+  it('gives the same q-values as a comparison sort', () => {
+    const p = nearTies(3000, 7).concat(nearTies(3000, 7).reverse())
+    expect(Array.from(benjaminiHochberg(p))).toEqual(referenceQ(p))
   })
 })
