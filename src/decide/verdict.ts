@@ -10,11 +10,12 @@
 import type { DetectConfig } from '../config/schema.js'
 import type { Moments } from '../kernel/moments.js'
 import { tTwoSidedP } from '../stats/distributions.js'
-import { qValues } from '../stats/fdr.js'
+import { fillQValues } from '../stats/fdr.js'
 import { residualDf, type WeightKind } from '../stats/fit.js'
-import { effectiveN, fallbackRho, lagRhoStar } from '../stats/serial.js'
+import { effectiveN, fallbackRho, lagRhoStar, type SerialMode } from '../stats/serial.js'
 import {
   type Baseline,
+  type BaselineScratch,
   chowTest,
   directedP,
   EXACT_DELTA_RATIO,
@@ -158,36 +159,43 @@ export class FamilyDecisions implements Iterable<ShiftDecision> {
   /** @internal */ readonly rule: Uint8Array
   /** @internal */ readonly testCode: Uint8Array
   /** @internal */ readonly serialCode: Uint8Array
-  /** @internal */ readonly baseK: Int32Array
+  /** @internal */ readonly baseK: Uint16Array
   /** @internal */ readonly curN: Int32Array
   /** @internal */ readonly slope: Float64Array
   /** @internal */ readonly baseSlope: Float64Array
   /** @internal */ readonly deltaSe: Float64Array
   /** @internal */ readonly statistic: Float64Array
   /** @internal */ readonly df: Float64Array
-  /** @internal */ readonly nEffNew: Float64Array
-  /** @internal */ readonly nEffBase: Float64Array
+  /** n_eff of the new window; null when the family runs without the serial adjustment. @internal */
+  readonly nEffNew: Float64Array | null
+  /** n_eff of the baseline; null when the family runs without the serial adjustment. @internal */
+  readonly nEffBase: Float64Array | null
   readonly #detect: DetectConfig
 
-  constructor(length: number, detect: DetectConfig) {
+  /**
+   * Empty columns for `length` series. `serial: false` (the family runs without the serial
+   * adjustment) leaves out the two n_eff columns, which would hold only nulls.
+   */
+  constructor(length: number, detect: DetectConfig, serial = true) {
     this.length = length
     this.#detect = detect
     this.verdictCode = new Uint8Array(length)
     this.rule = new Uint8Array(length)
     this.testCode = new Uint8Array(length)
     this.serialCode = new Uint8Array(length)
-    this.baseK = new Int32Array(length)
+    this.baseK = new Uint16Array(length)
     this.curN = new Int32Array(length)
+    // NaN stands for null; `slope` is written for every series, so it is not pre-filled.
     const nan = () => new Float64Array(length).fill(Number.NaN)
     this.p = nan()
     this.q = nan()
-    this.slope = nan()
+    this.slope = new Float64Array(length)
     this.baseSlope = nan()
     this.deltaSe = nan()
     this.statistic = nan()
     this.df = nan()
-    this.nEffNew = nan()
-    this.nEffBase = nan()
+    this.nEffNew = serial ? nan() : null
+    this.nEffBase = serial ? nan() : null
   }
 
   /** Verdict of series i. */
@@ -215,8 +223,8 @@ export class FamilyDecisions implements Iterable<ShiftDecision> {
       q: nullable(this.q[i] as number),
       test: TESTS[this.testCode[i] as number] as DecisionTest,
       serial: SERIALS[this.serialCode[i] as number] as SerialUse,
-      nEffNew: nullable(this.nEffNew[i] as number),
-      nEffBase: nullable(this.nEffBase[i] as number),
+      nEffNew: this.nEffNew === null ? null : nullable(this.nEffNew[i] as number),
+      nEffBase: this.nEffBase === null ? null : nullable(this.nEffBase[i] as number),
     }
   }
 
@@ -252,11 +260,11 @@ export class FamilyDecisions implements Iterable<ShiftDecision> {
       case Rule.FlatBaseline:
         return 'flat: all x equal in every baseline window'
       case Rule.ThinNEffNew:
-        return `thin: new window n_eff ${fmt(this.nEffNew[i] as number)} < minNEff ${d.minNEff}`
+        return `thin: new window n_eff ${fmt(this.nEffNew?.[i] ?? Number.NaN)} < minNEff ${d.minNEff}`
       case Rule.ThinNEffBase: {
         const mult = d.baselineKind === 'merged-line' ? 1 : k
         const need = mult === 1 ? `minNEff ${d.minNEff}` : `${mult} windows × minNEff ${d.minNEff}`
-        return `thin: baseline n_eff ${fmt(this.nEffBase[i] as number)} < ${need}`
+        return `thin: baseline n_eff ${fmt(this.nEffBase?.[i] ?? Number.NaN)} < ${need}`
       }
       case Rule.NoBaseDf:
         return 'thin: baseline has no residual degrees of freedom'
@@ -293,7 +301,8 @@ export class FamilyDecisions implements Iterable<ShiftDecision> {
  * `chow` run without it (`serial` = `off`). k > 1 baselines follow `baselineKind` (§3.5); `chow`
  * compares with the merged line of the baseline windows and needs `baselineOffsets`.
  *
- * Cost is linear apart from one sort for BH: about 10⁶ series per second or two.
+ * Cost is linear apart from one sort for BH: 10⁶ series take about 1–2 s of CPU, most of it in the
+ * t distribution; besides the result columns it allocates 9 bytes per series.
  */
 export function decideWindowFamily(
   candidates: readonly ShiftCandidate[],
@@ -303,211 +312,45 @@ export function decideWindowFamily(
   const weights = opts.weights ?? 'none'
   const serialMode = detect.serial === 'off' || weights !== 'none' || detect.test !== 'welch' ? 'off' : detect.serial
   const m = candidates.length
-  const out = new FamilyDecisions(m, detect)
-  const plainTestCode = detect.test === 'welch' ? 1 : detect.test === 'pooled' ? 2 : 3
-  out.testCode.fill(plainTestCode)
+  const out = new FamilyDecisions(m, detect, serialMode !== 'off')
+  out.testCode.fill(detect.test === 'welch' ? 1 : detect.test === 'pooled' ? 2 : 3)
   out.serialCode.fill(3)
-
-  // Per-series numbers carried from pass 1 to pass 2 (Welch only).
-  const curRss = new Float64Array(m)
-  const curSxx = new Float64Array(m)
-  const curDf = new Float64Array(m)
-  const baseRss = new Float64Array(m)
-  const baseSxx = new Float64Array(m)
-  const baseDf = new Float64Array(m)
-  const baseParams = new Float64Array(m)
-  const baseN = new Float64Array(m)
-  /** 0 decided, 1 tested, 2 Welch pending. */
+  const family: Family = { detect, weights, serialMode, base: newBaselineScratch() }
   const state = new Uint8Array(m)
-  const rhos: number[] = []
-  const base = newBaselineScratch()
 
-  // Pass 1: thin/flat, baselines, pooled/Chow tests, the new windows' serial statistics.
+  // Pass 1: every series whose sides do not need the §5.6 fallback ρ* (all of them when rows come in
+  // time order) is decided at once; the others wait for the fallback, which needs the whole family.
+  let waiting = 0
   for (let i = 0; i < m; i++) {
-    const c = candidates[i] as ShiftCandidate
-    const cur = c.current
-    const slope = slopeOf(cur)
-    out.slope[i] = slope
-    out.curN[i] = cur.n
-    if (cur.n < detect.minPoints) {
-      decideUntested(out, i, Rule.ThinNew, V_THIN)
-      continue
-    }
-    // At most the `baselineWindows` most recent windows (the list is oldest first).
-    let given = c.baseline
-    let givenOffsets = c.baselineOffsets ?? null
-    if (given.length > detect.baselineWindows) {
-      given = given.slice(-detect.baselineWindows)
-      givenOffsets = givenOffsets === null ? null : givenOffsets.slice(-detect.baselineWindows)
-    }
-    let enough = 0
-    let usable = 0
-    for (const b of given) {
-      if (b.n < detect.minPoints) continue
-      enough++
-      if (b.xMax !== b.xMin && b.sxx > 0) usable++
-    }
-    if (enough === 0) {
-      decideUntested(out, i, given.length === 0 ? Rule.NoBaseline : Rule.ThinBaseline, V_THIN)
-      continue
-    }
-    if (Number.isNaN(slope)) {
-      decideUntested(out, i, Rule.FlatNew, V_FLAT)
-      continue
-    }
-    if (usable === 0) {
-      decideUntested(out, i, Rule.FlatBaseline, V_FLAT)
-      continue
-    }
-    let windows = given
-    let offsets = givenOffsets
-    if (usable !== given.length) {
-      const keep = given.map((b) => b.n >= detect.minPoints && b.xMax !== b.xMin && b.sxx > 0)
-      windows = given.filter((_, j) => keep[j])
-      offsets = offsets === null ? null : offsets.filter((_, j) => keep[j])
-    }
-    const needsOffsets = detect.test === 'chow' || (detect.baselineKind === 'merged-line' && usable > 1)
-    if (needsOffsets && (offsets === null || offsets.length !== windows.length)) {
-      throw new Error(
-        `series ${i}: ${detect.test === 'chow' ? 'test chow' : 'baselineKind merged-line'} needs baselineOffsets for every baseline window`,
-      )
-    }
-    if (detect.baselineKind === 'merged-line' && usable > 1) {
-      const b = mergedLineBaseline(windows, relativeTo(offsets as readonly number[]), weights, serialMode) as Baseline
-      base.k = b.k
-      base.n = b.n
-      base.slope = b.slope
-      base.rss = b.rss
-      base.sxx = b.sxx
-      base.params = b.params
-      base.df = b.df
-      base.nEff = b.serial === null ? Number.NaN : b.serial.nEff
-    } else fillCommonSlope(windows, weights, serialMode, base)
-    out.baseSlope[i] = base.slope
-    out.baseK[i] = usable
-    const rss = residualSum(cur)
-    if (detect.test === 'chow') {
-      const rel = relativeTo([...(offsets as readonly number[]), 0])
-      const old = mergeOnOrigin(windows, rel.slice(0, -1))
-      recordTest(out, i, chowTest(old, cur, rel[rel.length - 1] as number, weights), detect)
-      state[i] = 1
-      continue
-    }
-    if (detect.test === 'pooled') {
-      const r = pooledTest(
-        { slope: base.slope, rss: base.rss, sxx: base.sxx, df: base.df },
-        { slope, rss, sxx: cur.sxx, df: residualDf(cur, weights) },
-      )
-      recordTest(out, i, r, detect)
-      state[i] = 1
-      continue
-    }
-    curRss[i] = rss
-    curSxx[i] = cur.sxx
-    curDf[i] = residualDf(cur, weights)
-    baseRss[i] = base.rss
-    baseSxx[i] = base.sxx
-    baseDf[i] = base.df
-    baseParams[i] = base.params
-    baseN[i] = base.n
-    if (serialMode !== 'off') {
-      const rho = lagRhoStar(cur, slope, rss, serialMode)
-      if (!Number.isNaN(rho)) {
-        out.nEffNew[i] = effectiveN(cur.n, rho)
-        rhos.push(rho)
-      }
-      out.nEffBase[i] = base.nEff
-    }
-    state[i] = 2
+    const s = decideSeries(candidates[i] as ShiftCandidate, i, out, family, Number.NaN)
+    state[i] = s
+    if (s === S_NEEDS_FALLBACK) waiting++
   }
 
-  // Pass 2: §5.6 fallback, the n_eff thin rule and the Welch test (§3.2).
-  const fb = serialMode === 'off' ? 0 : fallbackRho(rhos, detect.serialFallbackRho).rho
-  for (let i = 0; i < m; i++) {
-    if (state[i] !== 2) continue
-    let curSide = Side.Exact
-    let baseSide = Side.Exact
-    let nNew = out.nEffNew[i] as number
-    let nBase = out.nEffBase[i] as number
-    if (serialMode !== 'off') {
-      if ((curRss[i] as number) > 0) {
-        if (!Number.isNaN(nNew)) curSide = Side.Adjusted
-        else if (fb > 0) {
-          curSide = Side.Fallback
-          nNew = fallbackNEff(out.curN[i] as number, fb)
-        } else curSide = Side.Unavailable
-      }
-      if ((baseRss[i] as number) > 0) {
-        if (!Number.isNaN(nBase)) baseSide = Side.Adjusted
-        else if (fb > 0) {
-          baseSide = Side.Fallback
-          nBase = fallbackNEff(baseN[i] as number, fb)
-        } else baseSide = Side.Unavailable
-      }
-      out.nEffNew[i] = nNew
-      out.nEffBase[i] = nBase
-      out.serialCode[i] = serialCodeOf(curSide, baseSide)
+  // Pass 2: §5.6 fallback from the ρ* of every new window that has one (their n_eff is set), then
+  // the waiting series again. ρ* is recomputed rather than kept: this pass is the rare case.
+  if (waiting > 0) {
+    // Series wait only when the family runs with the serial adjustment, so the column exists.
+    const nEffNew = out.nEffNew as Float64Array
+    let count = 0
+    for (let i = 0; i < m; i++) if (!Number.isNaN(nEffNew[i] as number)) count++
+    const rhos = new Float64Array(count)
+    for (let i = 0, j = 0; i < m; i++) {
+      if (Number.isNaN(nEffNew[i] as number)) continue
+      const cur = (candidates[i] as ShiftCandidate).current
+      rhos[j++] = lagRhoStar(cur, out.slope[i] as number, residualSum(cur), serialMode as SerialMode)
     }
-    out.testCode[i] = Number.isNaN(nNew) && Number.isNaN(nBase) ? 1 : 0
-    const k = out.baseK[i] as number
-    if (!Number.isNaN(nNew) && nNew < detect.minNEff) {
-      decideUntested(out, i, Rule.ThinNEffNew, V_THIN)
-      state[i] = 0
-      continue
+    const fb = fallbackRho(rhos, detect.serialFallbackRho).rho
+    for (let i = 0; i < m; i++) {
+      if (state[i] === S_NEEDS_FALLBACK) state[i] = decideSeries(candidates[i] as ShiftCandidate, i, out, family, fb)
     }
-    const mult = detect.baselineKind === 'merged-line' ? 1 : k
-    if (!Number.isNaN(nBase) && nBase < mult * detect.minNEff) {
-      decideUntested(out, i, Rule.ThinNEffBase, V_THIN)
-      state[i] = 0
-      continue
-    }
-    const dfNew = Number.isNaN(nNew) ? (curDf[i] as number) : nNew - 2
-    const dfOld = Number.isNaN(nBase) ? (baseDf[i] as number) : nBase - (baseParams[i] as number)
-    if (!(dfOld > 0) || !(dfNew > 0)) {
-      decideUntested(out, i, Rule.NoBaseDf, V_THIN)
-      state[i] = 0
-      continue
-    }
-    // welchTest (statistics.md §3.2, exact fits §3.6) written out inline: this loop runs once per
-    // series and must not allocate; the worked-example reference test checks both paths agree.
-    const slopeOld = out.baseSlope[i] as number
-    const slopeNew = out.slope[i] as number
-    const vOld = (baseRss[i] as number) / (dfOld * (baseSxx[i] as number))
-    const vNew = (curRss[i] as number) / (dfNew * (curSxx[i] as number))
-    const v = vOld + vNew
-    const delta = slopeNew - slopeOld
-    let p: number
-    if (v > 0) {
-      const se = Math.sqrt(v)
-      const t = delta / se
-      const nu = (v * v) / ((vOld * vOld) / dfOld + (vNew * vNew) / dfNew)
-      out.deltaSe[i] = se
-      out.statistic[i] = t
-      out.df[i] = nu
-      p = tTwoSidedP(t, nu)
-    } else {
-      out.deltaSe[i] = 0
-      p = Math.abs(delta) > EXACT_DELTA_RATIO * Math.max(Math.abs(slopeOld), Math.abs(slopeNew)) ? 0 : 1
-    }
-    out.p[i] = directedP(p, delta, detect.direction)
-    state[i] = 1
   }
 
   // Pass 3: FDR across the family (§4.2), then the practical-change rule (§4.3).
-  let tested = 0
-  for (let i = 0; i < m; i++) if (state[i] === 1) tested++
-  const idx = new Int32Array(tested)
-  const ps = new Float64Array(tested)
-  for (let i = 0, j = 0; i < m; i++) {
-    if (state[i] !== 1) continue
-    idx[j] = i
-    ps[j++] = out.p[i] as number
-  }
-  const qs = qValues(ps, detect.fdrMethod)
-  for (let j = 0; j < tested; j++) {
-    const i = idx[j] as number
-    const q = qs[j] as number
-    out.q[i] = q
+  fillQValues(out.p, state, detect.fdrMethod, out.q)
+  for (let i = 0; i < m; i++) {
+    if (state[i] !== S_TESTED) continue
+    const q = out.q[i] as number
     const base = out.baseSlope[i] as number
     const absDelta = Math.abs((out.slope[i] as number) - base)
     const rel = base === 0 ? (absDelta === 0 ? 0 : Number.POSITIVE_INFINITY) : absDelta / Math.abs(base)
@@ -522,6 +365,163 @@ export function decideWindowFamily(
   return out
 }
 
+/** What one family shares across its series. */
+interface Family {
+  readonly detect: DetectConfig
+  readonly weights: WeightKind
+  readonly serialMode: SerialMode | 'off'
+  /** Refilled per series. */
+  readonly base: BaselineScratch
+}
+
+/** `decideSeries` outcomes; `state` values of `decideWindowFamily` (S_TESTED marks the BH family). */
+const S_DECIDED = 0
+const S_TESTED = 1
+const S_NEEDS_FALLBACK = 2
+
+/**
+ * Steps 1–3 of `decideWindowFamily` for series i: writes its columns and returns `S_DECIDED`
+ * (thin/flat, verdict set), `S_TESTED` (p set, awaiting BH) or, when `fb` is NaN and a side needs the
+ * §5.6 fallback ρ*, `S_NEEDS_FALLBACK` (call again with `fb`; new-window n_eff already set when it
+ * has its own ρ*). Allocates nothing on the default paths (k = 1 or common slope, Welch).
+ */
+function decideSeries(c: ShiftCandidate, i: number, out: FamilyDecisions, f: Family, fb: number): number {
+  const { detect, weights, serialMode, base } = f
+  const cur = c.current
+  const slope = slopeOf(cur)
+  out.slope[i] = slope
+  out.curN[i] = cur.n
+  if (cur.n < detect.minPoints) return decideUntested(out, i, Rule.ThinNew, V_THIN)
+  // At most the `baselineWindows` most recent windows (the list is oldest first).
+  let given = c.baseline
+  let givenOffsets = c.baselineOffsets ?? null
+  if (given.length > detect.baselineWindows) {
+    given = given.slice(-detect.baselineWindows)
+    givenOffsets = givenOffsets === null ? null : givenOffsets.slice(-detect.baselineWindows)
+  }
+  let enough = 0
+  let usable = 0
+  for (let j = 0; j < given.length; j++) {
+    const b = given[j] as Moments
+    if (b.n < detect.minPoints) continue
+    enough++
+    if (b.xMax !== b.xMin && b.sxx > 0) usable++
+  }
+  if (enough === 0) {
+    return decideUntested(out, i, given.length === 0 ? Rule.NoBaseline : Rule.ThinBaseline, V_THIN)
+  }
+  if (Number.isNaN(slope)) return decideUntested(out, i, Rule.FlatNew, V_FLAT)
+  if (usable === 0) return decideUntested(out, i, Rule.FlatBaseline, V_FLAT)
+  let windows = given
+  let offsets = givenOffsets
+  if (usable !== given.length) {
+    const keep = given.map((b) => b.n >= detect.minPoints && b.xMax !== b.xMin && b.sxx > 0)
+    windows = given.filter((_, j) => keep[j])
+    offsets = offsets === null ? null : offsets.filter((_, j) => keep[j])
+  }
+  const needsOffsets = detect.test === 'chow' || (detect.baselineKind === 'merged-line' && usable > 1)
+  if (needsOffsets && (offsets === null || offsets.length !== windows.length)) {
+    throw new Error(
+      `series ${i}: ${detect.test === 'chow' ? 'test chow' : 'baselineKind merged-line'} needs baselineOffsets for every baseline window`,
+    )
+  }
+  if (detect.baselineKind === 'merged-line' && usable > 1) {
+    const b = mergedLineBaseline(windows, relativeTo(offsets as readonly number[]), weights, serialMode) as Baseline
+    base.k = b.k
+    base.n = b.n
+    base.slope = b.slope
+    base.rss = b.rss
+    base.sxx = b.sxx
+    base.params = b.params
+    base.df = b.df
+    base.nEff = b.serial === null ? Number.NaN : b.serial.nEff
+  } else fillCommonSlope(windows, weights, serialMode, base)
+  out.baseSlope[i] = base.slope
+  out.baseK[i] = usable
+  const rss = residualSum(cur)
+  if (detect.test === 'chow') {
+    const rel = relativeTo([...(offsets as readonly number[]), 0])
+    const old = mergeOnOrigin(windows, rel.slice(0, -1))
+    recordTest(out, i, chowTest(old, cur, rel[rel.length - 1] as number, weights), detect)
+    return S_TESTED
+  }
+  if (detect.test === 'pooled') {
+    const r = pooledTest(
+      { slope: base.slope, rss: base.rss, sxx: base.sxx, df: base.df },
+      { slope, rss, sxx: cur.sxx, df: residualDf(cur, weights) },
+    )
+    recordTest(out, i, r, detect)
+    return S_TESTED
+  }
+
+  // Serial adjustment per side (§5.4, §5.6), then the n_eff thin rule.
+  let nNew = Number.NaN
+  let nBase = Number.NaN
+  if (serialMode !== 'off') {
+    // Both columns exist: the family runs with the serial adjustment.
+    const nEffNew = out.nEffNew as Float64Array
+    const nEffBase = out.nEffBase as Float64Array
+    const rho = lagRhoStar(cur, slope, rss, serialMode)
+    if (!Number.isNaN(rho)) nNew = effectiveN(cur.n, rho)
+    nBase = base.nEff
+    // Set before a possible S_NEEDS_FALLBACK return: pass 2 takes ρ* from the series that have it.
+    nEffNew[i] = nNew
+    let curSide = Side.Exact
+    let baseSide = Side.Exact
+    if (rss > 0) {
+      if (!Number.isNaN(nNew)) curSide = Side.Adjusted
+      else if (Number.isNaN(fb)) return S_NEEDS_FALLBACK
+      else if (fb > 0) {
+        curSide = Side.Fallback
+        nNew = fallbackNEff(cur.n, fb)
+      } else curSide = Side.Unavailable
+    }
+    if (base.rss > 0) {
+      if (!Number.isNaN(nBase)) baseSide = Side.Adjusted
+      else if (Number.isNaN(fb)) return S_NEEDS_FALLBACK
+      else if (fb > 0) {
+        baseSide = Side.Fallback
+        nBase = fallbackNEff(base.n, fb)
+      } else baseSide = Side.Unavailable
+    }
+    nEffNew[i] = nNew
+    nEffBase[i] = nBase
+    out.serialCode[i] = serialCodeOf(curSide, baseSide)
+  }
+  out.testCode[i] = Number.isNaN(nNew) && Number.isNaN(nBase) ? 1 : 0
+  if (!Number.isNaN(nNew) && nNew < detect.minNEff) return decideUntested(out, i, Rule.ThinNEffNew, V_THIN)
+  const mult = detect.baselineKind === 'merged-line' ? 1 : usable
+  if (!Number.isNaN(nBase) && nBase < mult * detect.minNEff) {
+    return decideUntested(out, i, Rule.ThinNEffBase, V_THIN)
+  }
+  const dfNew = Number.isNaN(nNew) ? residualDf(cur, weights) : nNew - 2
+  const dfOld = Number.isNaN(nBase) ? base.df : nBase - base.params
+  if (!(dfOld > 0) || !(dfNew > 0)) return decideUntested(out, i, Rule.NoBaseDf, V_THIN)
+
+  // welchTest (statistics.md §3.2, exact fits §3.6) written out inline: this runs once per series and
+  // must not allocate; the worked-example reference test checks both paths agree.
+  const slopeOld = base.slope
+  const vOld = base.rss / (dfOld * base.sxx)
+  const vNew = rss / (dfNew * cur.sxx)
+  const v = vOld + vNew
+  const delta = slope - slopeOld
+  let p: number
+  if (v > 0) {
+    const se = Math.sqrt(v)
+    const t = delta / se
+    const nu = (v * v) / ((vOld * vOld) / dfOld + (vNew * vNew) / dfNew)
+    out.deltaSe[i] = se
+    out.statistic[i] = t
+    out.df[i] = nu
+    p = tTwoSidedP(t, nu)
+  } else {
+    out.deltaSe[i] = 0
+    p = Math.abs(delta) > EXACT_DELTA_RATIO * Math.max(Math.abs(slopeOld), Math.abs(slope)) ? 0 : 1
+  }
+  out.p[i] = directedP(p, delta, detect.direction)
+  return S_TESTED
+}
+
 /** Combined `serial` code of the two sides: fallback > unavailable > adjusted (§4.3, §5.6). */
 function serialCodeOf(a: Side, b: Side): number {
   if (a === Side.Fallback || b === Side.Fallback) return 1
@@ -530,9 +530,11 @@ function serialCodeOf(a: Side, b: Side): number {
   return 2
 }
 
-function decideUntested(out: FamilyDecisions, i: number, rule: Rule, verdict: number): void {
+/** Records an untested verdict (thin or flat); returns `S_DECIDED`. */
+function decideUntested(out: FamilyDecisions, i: number, rule: Rule, verdict: number): number {
   out.rule[i] = rule
   out.verdictCode[i] = verdict
+  return S_DECIDED
 }
 
 function recordTest(out: FamilyDecisions, i: number, r: ShiftTestResult, detect: DetectConfig): void {
