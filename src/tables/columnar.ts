@@ -268,8 +268,11 @@ const functionName = 'slopeshift_columns'
 /** Column sources by id, while their {@link withColumnarRows} call runs. Process-wide: any connection may read. */
 const sources = new Map<number, ColumnsPlan>()
 let sourceCounter = 0
-/** Connections the function is registered on (a registration is per database; repeating it replaces it). */
-const registered = new WeakSet<DuckDBConnection>()
+/**
+ * Connections the function is registered on (a registration is per database; repeating it replaces it), each with
+ * its function object, held as long as the connection so that its callbacks stay reachable.
+ */
+const registered = new WeakMap<DuckDBConnection, DuckDBTableFunction>()
 
 /** What bind hands to init and to each call. */
 interface Bound {
@@ -315,7 +318,7 @@ function registerColumnsFunction(connection: DuckDBConnection): void {
     },
   })
   connection.registerTableFunction(tableFunction)
-  registered.add(connection)
+  registered.set(connection, tableFunction)
 }
 
 /** Rows per call: DuckDB's vector size. */
