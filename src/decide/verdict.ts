@@ -301,8 +301,12 @@ export class FamilyDecisions implements Iterable<ShiftDecision> {
  * `chow` run without it (`serial` = `off`). k > 1 baselines follow `baselineKind` (§3.5); `chow`
  * compares with the merged line of the baseline windows and needs `baselineOffsets`.
  *
- * Cost is linear apart from one sort for BH: 10⁶ series take about 1–2 s of CPU, most of it in the
- * t distribution; besides the result columns it allocates 9 bytes per series.
+ * Cost is linear apart from one sort for BH: 10⁶ series take about 2 s of CPU on the 2-vCPU bench
+ * machine, half of it in the t distribution (whose temporaries drive minor GCs). Besides the result
+ * columns (~80 bytes per series) it allocates 9 bytes per series. V8 starts a full GC once more than
+ * 64 MB of typed arrays have been allocated since the last one, so a family of 10⁶ triggers one per
+ * call; with the candidates held as objects, that pause over the caller's heap, not this code,
+ * dominates the wall time (test/bench/decide.ts reports GC pauses beside the timings).
  */
 export function decideWindowFamily(
   candidates: readonly ShiftCandidate[],

@@ -6,6 +6,7 @@
  * candidates is reported separately.
  */
 import path from 'node:path'
+import { constants, type PerformanceEntry, PerformanceObserver } from 'node:perf_hooks'
 import { pathToFileURL } from 'node:url'
 import { fmt, median, printTable, projectRoot } from './lib.js'
 
@@ -34,6 +35,13 @@ export interface DecideResult {
     /** Process CPU time (user + system) during the call: less sensitive to other load than wall time. */
     readonly cpuMs: number[]
     readonly medianCpuMs: number
+    /**
+     * Garbage-collection pauses during the call (perf_hooks `gc` entries), major (mark-compact and
+     * incremental steps) and minor (scavenge). A major GC marks the whole heap, and most of that heap
+     * is the candidates built above: its cost grows with them, not with the decision code.
+     */
+    readonly gcMajorMs: number[]
+    readonly gcMinorMs: number[]
     readonly verdicts: Record<string, number>
   }[]
   readonly targetMs: number
@@ -100,6 +108,26 @@ function buildCandidates(acc: Accumulate, opts: DecideOptions): ShiftCandidate[]
   return out
 }
 
+/** GC pause time by kind within [from, to) (performance.now() clock). */
+function gcPauses(entries: readonly PerformanceEntry[], from: number, to: number): { major: number; minor: number } {
+  let major = 0
+  let minor = 0
+  for (const e of entries) {
+    if (e.startTime < from || e.startTime >= to) continue
+    const kind = (e as PerformanceEntry & { readonly detail?: { readonly kind?: number } }).detail?.kind
+    if (kind === constants.NODE_PERFORMANCE_GC_MINOR) minor += e.duration
+    else if (kind === constants.NODE_PERFORMANCE_GC_MAJOR || kind === constants.NODE_PERFORMANCE_GC_INCREMENTAL) {
+      major += e.duration
+    }
+  }
+  return { major, minor }
+}
+
+/** Resolves after queued performance entries have reached their observers. */
+function drainEntries(): Promise<void> {
+  return new Promise((resolve) => setTimeout(resolve, 10))
+}
+
 /** Runs the section and prints its table. */
 export async function benchDecide(opts: DecideOptions): Promise<DecideResult> {
   const acc = await importDist<Accumulate>('kernel/accumulate.js')
@@ -109,18 +137,30 @@ export async function benchDecide(opts: DecideOptions): Promise<DecideResult> {
   const candidates = buildCandidates(acc, opts)
   const buildMs = performance.now() - t0
   const modes: DecideResult['modes'][number][] = []
+  const gcEntries: PerformanceEntry[] = []
+  const observer = new PerformanceObserver((list) => {
+    gcEntries.push(...list.getEntries())
+  })
+  observer.observe({ entryTypes: ['gc'] })
   for (const serial of ['ar1', 'off'] as const) {
     const detect = schema.configSchema.shape.detect.parse({ serial })
     const wallMs: number[] = []
     const cpuMs: number[] = []
+    const gcMajorMs: number[] = []
+    const gcMinorMs: number[] = []
     let counts: Record<string, number> = {}
     for (let rep = 0; rep < opts.reps; rep++) {
       const cpu0 = process.cpuUsage()
       const t = performance.now()
       const decisions = verdict.decideWindowFamily(candidates, detect)
-      wallMs.push(performance.now() - t)
+      const end = performance.now()
+      wallMs.push(end - t)
       const cpu = process.cpuUsage(cpu0)
       cpuMs.push((cpu.user + cpu.system) / 1000)
+      await drainEntries()
+      const gc = gcPauses(gcEntries, t, end)
+      gcMajorMs.push(gc.major)
+      gcMinorMs.push(gc.minor)
       counts = {}
       for (const d of decisions) counts[d.verdict] = (counts[d.verdict] ?? 0) + 1
     }
@@ -131,17 +171,29 @@ export async function benchDecide(opts: DecideOptions): Promise<DecideResult> {
       medianMs: median(wallMs),
       cpuMs,
       medianCpuMs: median(cpuMs),
+      gcMajorMs,
+      gcMinorMs,
       verdicts: counts,
     })
   }
+  observer.disconnect()
   printTable(
     `decide: ${opts.series.toLocaleString('en-US')} series × 1 window family (${opts.points} points per window), decideWindowFamily in-process; candidates built in ${fmt(buildMs / 1000, 2)} s (not timed below)`,
-    ['test / serial', 'wall s (each rep)', 'median wall s', 'median CPU s', 'target ≤ 5 s', 'verdicts'],
+    [
+      'test / serial',
+      'wall s (each rep)',
+      'median wall s',
+      'median CPU s',
+      'GC pauses s major + minor (each rep)',
+      'target ≤ 5 s',
+      'verdicts',
+    ],
     modes.map((m) => [
       `${m.test} / ${m.serial}`,
       m.wallMs.map((v) => fmt(v / 1000, 2)).join(', '),
       fmt(m.medianMs / 1000, 2),
       fmt(m.medianCpuMs / 1000, 2),
+      m.gcMajorMs.map((v, i) => `${fmt(v / 1000, 2)} + ${fmt((m.gcMinorMs[i] ?? 0) / 1000, 2)}`).join(', '),
       m.medianMs <= 5000 ? 'met' : m.medianCpuMs <= 5000 ? 'met in CPU time only' : 'missed',
       Object.entries(m.verdicts)
         .map(([k, v]) => `${k} ${v}`)
