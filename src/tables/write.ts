@@ -360,13 +360,56 @@ function sortedOrder(
     if (d === 0) ties = true
   }
   if (i >= rowCount) return { order: null, ties }
-  const order = new Uint32Array(rowCount)
-  for (let p = 0; p < rowCount; p++) order[p] = p
-  order.sort((a, b) => compareRows(sortKeys, a, b) || a - b)
+  const order = radixOrder(rowCount, sortKeys)
   ties = false
   for (let p = 1; p < rowCount && !ties; p++)
     ties = compareRows(sortKeys, order[p - 1] as number, order[p] as number) === 0
   return { order, ties }
+}
+
+/**
+ * The positions of the rows sorted on the sort keys, stable (equal rows keep their input order): each key is turned
+ * into dense integer ranks, then one counting-sort pass per key, last key first. Why not `sort` with a comparator:
+ * ~n log n calls of a comparator that runs on cold JIT in a CLI process, where these passes are a few typed-array
+ * loops (shifts arrive by window, not by key, so they are always sorted here).
+ */
+function radixOrder(rowCount: number, sortKeys: readonly Float64Array[]): Uint32Array {
+  let order = new Uint32Array(rowCount)
+  for (let p = 0; p < rowCount; p++) order[p] = p
+  let next = new Uint32Array(rowCount)
+  for (let k = sortKeys.length - 1; k >= 0; k--) {
+    const { ranks, size } = denseRanks(sortKeys[k] as Float64Array)
+    const start = new Uint32Array(size + 1)
+    for (let p = 0; p < rowCount; p++) (start[(ranks[p] as number) + 1] as number)++
+    for (let r = 0; r < size; r++) start[r + 1] = (start[r + 1] as number) + (start[r] as number)
+    for (let p = 0; p < rowCount; p++) {
+      const row = order[p] as number
+      const rank = ranks[row] as number
+      next[start[rank] as number] = row
+      start[rank] = (start[rank] as number) + 1
+    }
+    ;[order, next] = [next, order]
+  }
+  return order
+}
+
+/** Rank of each value among the distinct values, ascending (0 = smallest); `size` distinct values. */
+function denseRanks(values: Float64Array): { ranks: Uint32Array; size: number } {
+  const distinct = Float64Array.from(new Set(values)).sort()
+  const rankOf = new Map<number, number>()
+  for (const [rank, value] of distinct.entries()) rankOf.set(value, rank)
+  const ranks = new Uint32Array(values.length)
+  let last = Number.NaN
+  let lastRank = 0
+  for (let i = 0; i < values.length; i++) {
+    const value = values[i] as number
+    if (value !== last) {
+      last = value
+      lastRank = rankOf.get(value) as number
+    }
+    ranks[i] = lastRank
+  }
+  return { ranks, size: distinct.length }
 }
 
 /**
