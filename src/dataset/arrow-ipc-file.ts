@@ -16,6 +16,7 @@ import { CompressionType, type Data, type DataType, type Field, Message, type Sc
 import { Footer } from 'apache-arrow/ipc/metadata/file'
 import type { RecordBatch as BatchHeader, BufferRegion } from 'apache-arrow/ipc/metadata/message'
 import { CompressedVectorLoader, VectorLoader } from 'apache-arrow/visitor/vectorloader'
+import { releaseBuffer, takeBuffer } from '../kernel/buffer-pool.js'
 import { decodeZstd } from './codecs.js'
 import { decodeLz4FrameInto, lz4FrameBound } from './lz4-frame.js'
 
@@ -130,6 +131,16 @@ export class IpcFileReader {
     if (pending !== null) await pending.catch(() => undefined)
   }
 
+  /**
+   * Hands the batch buffers back to the buffer pool for the next file; call after `settle()`, once
+   * the last batch has been used. The reader must not be used afterwards.
+   */
+  release(): void {
+    for (const b of [...this.blocks, this.arena]) releaseBuffer(b.buffer as ArrayBuffer)
+    this.blocks.fill(new Uint8Array(0))
+    this.arena = new Uint8Array(0)
+  }
+
   private blockAt(index: number): { offset: number; meta: number; total: number } {
     const block = this.footer.getRecordBatch(index)
     if (block === null) throw new Error(`record batch ${index} missing from the footer`)
@@ -140,7 +151,8 @@ export class IpcFileReader {
   private bufferFor(which: number, length: number): Uint8Array {
     let buffer = this.blocks[which] as Uint8Array
     if (buffer.length < length) {
-      buffer = new Uint8Array(Math.ceil(length * 1.25))
+      releaseBuffer(buffer.buffer as ArrayBuffer)
+      buffer = new Uint8Array(takeBuffer(Math.ceil(length * 1.25)))
       this.blocks[which] = buffer
     }
     return buffer
@@ -245,7 +257,7 @@ export class IpcFileReader {
       if (!reuse) return decodedCopy(src, bound)
       if (this.arena.length < at + bound) {
         // views handed out earlier keep the old arena alive and stay valid
-        this.arena = new Uint8Array(Math.ceil((at + bound) * 1.25))
+        this.arena = new Uint8Array(takeBuffer(Math.ceil((at + bound) * 1.25)))
       }
       const got = decodeLz4FrameInto(src, this.arena.subarray(at, at + bound))
       const out = this.arena.subarray(at, at + got)

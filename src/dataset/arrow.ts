@@ -151,6 +151,7 @@ async function readFileFormat(
     }
   } finally {
     await ipc.settle()
+    ipc.release()
   }
   return acc.finish()
 }
@@ -307,6 +308,9 @@ function layoutOf(file: SourceFile, plan: MomentsPlan, schema: Schema): FileLayo
 /** Value ids of the second and later key columns must stay below this (2^22) to pair exactly in a double. */
 const pairBase = 2 ** 22
 
+/** Per-batch scratch arrays, grown to the largest batch and kept for the next file. */
+const sharedScratch = new Scratch()
+
 /** Accumulates the batches of one file. */
 class FileAccumulator {
   private readonly file: SourceFile
@@ -314,7 +318,8 @@ class FileAccumulator {
   private readonly slots: MomentSlots
   private readonly index: SlotIndex
   private readonly cursor: WindowCursor
-  private readonly scratch = new Scratch()
+  /** Shared by all readers: `add` uses it only synchronously, so interleaved reads never see each other's rows. */
+  private readonly scratch = sharedScratch
   /** Per key position: value ids (columns only). */
   private readonly keyIds: (KeyValueIds | null)[]
   private readonly keyReaders: (KeyColumnReader | null)[]
@@ -565,6 +570,7 @@ class FileAccumulator {
       }
       out[i] = { file: this.file.path, key, windowStartMs, moments }
     }
+    this.slots.release()
     return out
   }
 }

@@ -7,6 +7,8 @@
  * `addRow`/`addLagRow`, so results are bit-identical to feeding the rows through those.
  * Memory grows with the number of slots, never with rows. Pure: no I/O.
  */
+
+import { releaseBuffer, takeBuffer } from './buffer-pool.js'
 import { emptyLag, type LagBlock, type Moments } from './moments.js'
 import type { SlotIndex } from './slot-index.js'
 import type { WindowCursor } from './window-x.js'
@@ -81,8 +83,8 @@ export class MomentSlots {
   skipped: Float64Array = new Float64Array(0)
   /** Per slot `lagStride` doubles: pairs, cur/prev means, the four cross sums, first/last x and y. */
   lag: Float64Array = new Float64Array(0)
-  /** 1 while the slot's rows arrived in time order. */
-  inOrder: Uint8Array = new Uint8Array(0)
+  /** 1 once a row of the slot arrived with x below the previous row's x (`LagBlock.inOrder` false). */
+  outOfOrder: Uint8Array = new Uint8Array(0)
   private capacity = 0
 
   constructor(options: SlotOptions) {
@@ -99,39 +101,47 @@ export class MomentSlots {
     return id
   }
 
+  /**
+   * New capacity; the new tail stays all zeros: nothing is pre-filled (x min/max and the lag
+   * block's first/last values are set by a slot's first row), so fresh zero pages are only touched
+   * when used.
+   */
   private grow(capacity: number): void {
-    const old = this.capacity
-    const core = new Float64Array(capacity * coreStride)
-    core.set(this.core)
-    for (let k = old; k < capacity; k++) {
-      core[k * coreStride + XMIN] = Number.POSITIVE_INFINITY
-      core[k * coreStride + XMAX] = Number.NEGATIVE_INFINITY
-    }
-    this.core = core
-    this.skipped = grown(this.skipped, capacity)
-    if (this.weighted) this.wSum = grown(this.wSum, capacity)
+    this.core = grownF64(this.core, capacity * coreStride)
+    this.skipped = grownF64(this.skipped, capacity)
+    if (this.weighted) this.wSum = grownF64(this.wSum, capacity)
     if (this.trackLag) {
-      const lag = new Float64Array(capacity * lagStride)
-      lag.set(this.lag)
-      for (let k = old; k < capacity; k++) {
-        const b = k * lagStride
-        lag[b + FX] = Number.NaN
-        lag[b + FY] = Number.NaN
-        lag[b + LX] = Number.NaN
-        lag[b + LY] = Number.NaN
-      }
-      this.lag = lag
-      const inOrder = new Uint8Array(capacity).fill(1)
-      inOrder.set(this.inOrder)
-      this.inOrder = inOrder
+      this.lag = grownF64(this.lag, capacity * lagStride)
+      const outOfOrder = new Uint8Array(takeBuffer(capacity), 0, capacity)
+      outOfOrder.set(this.outOfOrder)
+      releaseBuffer(this.outOfOrder.buffer as ArrayBuffer)
+      this.outOfOrder = outOfOrder
     }
     this.capacity = capacity
   }
+
+  /**
+   * Hands the store's arrays back to the buffer pool (`buffer-pool.ts`) for the next file's store;
+   * call it once the slots have been read out. The store is then empty and must not be used again.
+   */
+  release(): void {
+    for (const a of [this.core, this.skipped, this.wSum, this.lag, this.outOfOrder])
+      releaseBuffer(a.buffer as ArrayBuffer)
+    this.core = new Float64Array(0)
+    this.skipped = new Float64Array(0)
+    this.wSum = new Float64Array(0)
+    this.lag = new Float64Array(0)
+    this.outOfOrder = new Uint8Array(0)
+    this.size = 0
+    this.capacity = 0
+  }
 }
 
-function grown(a: Float64Array, capacity: number): Float64Array {
-  const b = new Float64Array(capacity)
+/** A zeroed Float64Array of `length` from the pool holding `a`'s values; `a` goes back to the pool. */
+function grownF64(a: Float64Array, length: number): Float64Array {
+  const b = new Float64Array(takeBuffer(length * 8), 0, length)
   b.set(a)
+  releaseBuffer(a.buffer as ArrayBuffer)
   return b
 }
 
@@ -215,20 +225,25 @@ function plainStep(s: MomentSlots, k: number, xi: number, yi: number): boolean {
   st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
   st[b + SYY] = (st[b + SYY] as number) + dy * ey
   st[b + SXY] = (st[b + SXY] as number) + dx * ey
-  if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
-  if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+  if (c === 1) {
+    st[b + XMIN] = xi
+    st[b + XMAX] = xi
+  } else {
+    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+  }
   return true
 }
 
 /** Unweighted Welford step plus the lag-block pair step of statistics.md §5.2 (as `addLagRow`). */
 function lagStep(s: MomentSlots, k: number, xi: number, yi: number): boolean {
   if (!plainStep(s, k, xi, yi)) return false
-  pairStep(s.lag, s.inOrder, k, s.core[k * coreStride + N] as number, xi, yi)
+  pairStep(s.lag, s.outOfOrder, k, s.core[k * coreStride + N] as number, xi, yi)
   return true
 }
 
 /** The §5.2 pair step for slot `k` whose row count is now `c` (first row: start the stream). */
-function pairStep(g: Float64Array, inOrder: Uint8Array, k: number, c: number, xi: number, yi: number): void {
+function pairStep(g: Float64Array, outOfOrder: Uint8Array, k: number, c: number, xi: number, yi: number): void {
   const b = k * lagStride
   if (c === 1) {
     g[b + FX] = xi
@@ -239,7 +254,7 @@ function pairStep(g: Float64Array, inOrder: Uint8Array, k: number, c: number, xi
   }
   const px = g[b + LX] as number
   const py = g[b + LY] as number
-  if (xi < px) inOrder[k] = 0
+  if (xi < px) outOfOrder[k] = 1
   const p = (g[b + PAIRS] as number) + 1
   g[b + PAIRS] = p
   const dPx = px - (g[b + PXM] as number)
@@ -305,8 +320,13 @@ function indexedPlain(s: MomentSlots, index: SlotIndex, rows: IndexedRows): numb
     st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
     st[b + SYY] = (st[b + SYY] as number) + dy * ey
     st[b + SXY] = (st[b + SXY] as number) + dx * ey
-    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
-    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    if (c === 1) {
+      st[b + XMIN] = xi
+      st[b + XMAX] = xi
+    } else {
+      if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+      if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    }
   }
   return bad
 }
@@ -318,7 +338,7 @@ function indexedLagged(s: MomentSlots, index: SlotIndex, rows: IndexedRows): num
   let lastSlot = index.lastSlotBySeries
   let st = s.core
   let g = s.lag
-  let inOrder = s.inOrder
+  let outOfOrder = s.outOfOrder
   let skipped = s.skipped
   let bad = 0
   for (let i = 0; i < length; i++) {
@@ -335,7 +355,7 @@ function indexedLagged(s: MomentSlots, index: SlotIndex, rows: IndexedRows): num
       lastWindow = index.lastWindowBySeries
       lastSlot = index.lastSlotBySeries
       g = s.lag
-      inOrder = s.inOrder
+      outOfOrder = s.outOfOrder
     }
     const xi = x[i] as number
     const yi = y[i] as number
@@ -360,8 +380,13 @@ function indexedLagged(s: MomentSlots, index: SlotIndex, rows: IndexedRows): num
     st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
     st[b + SYY] = (st[b + SYY] as number) + dy * ey
     st[b + SXY] = (st[b + SXY] as number) + dx * ey
-    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
-    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    if (c === 1) {
+      st[b + XMIN] = xi
+      st[b + XMAX] = xi
+    } else {
+      if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+      if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    }
     // the §5.2 pair step, written out here (as in `pairStep`): V8 did not inline the call
     const l = k * lagStride
     if (c === 1) {
@@ -373,7 +398,7 @@ function indexedLagged(s: MomentSlots, index: SlotIndex, rows: IndexedRows): num
     }
     const px = g[l + LX] as number
     const py = g[l + LY] as number
-    if (xi < px) inOrder[k] = 0
+    if (xi < px) outOfOrder[k] = 1
     const p = (g[l + PAIRS] as number) + 1
     g[l + PAIRS] = p
     const opx = g[l + PXM] as number
@@ -441,7 +466,7 @@ export function accumulateInt64(
   let st = slots.core
   let skipped = slots.skipped
   let g = slots.lag
-  let inOrder = slots.inOrder
+  let outOfOrder = slots.outOfOrder
   let bad = 0
   for (let i = 0; i < length; i++) {
     if (timeValidity !== null) {
@@ -472,7 +497,7 @@ export function accumulateInt64(
       st = slots.core
       skipped = slots.skipped
       g = slots.lag
-      inOrder = slots.inOrder
+      outOfOrder = slots.outOfOrder
       lastWindow = index.lastWindowBySeries
       lastSlot = index.lastSlotBySeries
     }
@@ -498,8 +523,13 @@ export function accumulateInt64(
     st[b + SXX] = (st[b + SXX] as number) + dx * (xi - mx)
     st[b + SYY] = (st[b + SYY] as number) + dy * ey
     st[b + SXY] = (st[b + SXY] as number) + dx * ey
-    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
-    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    if (c === 1) {
+      st[b + XMIN] = xi
+      st[b + XMAX] = xi
+    } else {
+      if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+      if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    }
     if (!lagged) continue
     // the §5.2 pair step, as in `pairStep`
     const l = k * lagStride
@@ -512,7 +542,7 @@ export function accumulateInt64(
     }
     const px = g[l + LX] as number
     const py = g[l + LY] as number
-    if (xi < px) inOrder[k] = 0
+    if (xi < px) outOfOrder[k] = 1
     const p = (g[l + PAIRS] as number) + 1
     g[l + PAIRS] = p
     const opx = g[l + PXM] as number
@@ -564,7 +594,8 @@ function accumulateWeighted(
       continue
     }
     const b = k * coreStride
-    st[b + N] = (st[b + N] as number) + 1
+    const c = (st[b + N] as number) + 1
+    st[b + N] = c
     const ws = (wSum[k] as number) + w
     wSum[k] = ws
     const f = w / ws
@@ -577,8 +608,13 @@ function accumulateWeighted(
     st[b + SXX] = (st[b + SXX] as number) + w * dx * (xi - mx)
     st[b + SYY] = (st[b + SYY] as number) + w * dy * (yi - my)
     st[b + SXY] = (st[b + SXY] as number) + w * dx * (yi - my)
-    if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
-    if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    if (c === 1) {
+      st[b + XMIN] = xi
+      st[b + XMAX] = xi
+    } else {
+      if (xi < (st[b + XMIN] as number)) st[b + XMIN] = xi
+      if (xi > (st[b + XMAX] as number)) st[b + XMAX] = xi
+    }
   }
   return bad
 }
@@ -631,8 +667,9 @@ export function slotMoments(slots: MomentSlots, k: number): Moments {
     sxx: st[b + SXX] as number,
     syy: st[b + SYY] as number,
     sxy: st[b + SXY] as number,
-    xMin: st[b + XMIN] as number,
-    xMax: st[b + XMAX] as number,
+    // a slot without accepted rows was never written: its extremes are those of `emptyMoments`
+    xMin: n === 0 ? Number.POSITIVE_INFINITY : (st[b + XMIN] as number),
+    xMax: n === 0 ? Number.NEGATIVE_INFINITY : (st[b + XMAX] as number),
     skipped: slots.skipped[k] as number,
     lag: slots.trackLag ? (n === 0 ? emptyLag() : slotLag(slots, k)) : null,
   }
@@ -656,6 +693,6 @@ function slotLag(slots: MomentSlots, k: number): LagBlock {
     firstY: g[b + FY] as number,
     lastX: g[b + LX] as number,
     lastY: g[b + LY] as number,
-    inOrder: slots.inOrder[k] === 1,
+    inOrder: slots.outOfOrder[k] === 0,
   }
 }
