@@ -52,11 +52,13 @@ export class WindowCursor {
   readonly xDiv: number
   private cur = -1
   // current window in ticks: start as exact 32-bit pair (int64 path) and as a number (number path)
+  // NaN until the first window: these hold doubles (epoch ticks beyond the small-integer range), and
+  // starting them as doubles spares optimized loops a deopt when the first window is entered
   private startHi = 0
-  private startLo = 0
-  private startT = 0
-  private endT = 0
-  private spanT = 0
+  private startLo = Number.NaN
+  private startT = Number.NaN
+  private endT = Number.NaN
+  private spanT = Number.NaN
 
   constructor(spec: WindowSpec, xUnit: XUnit, tick: TickUnit) {
     this.spec = spec
