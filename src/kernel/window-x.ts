@@ -52,8 +52,8 @@ export class WindowCursor {
   readonly xDiv: number
   private cur = -1
   // current window in ticks: start as exact 32-bit pair (int64 path) and as a number (number path)
-  // NaN until the first window: these hold doubles (epoch ticks beyond the small-integer range), and
-  // starting them as doubles spares optimized loops a deopt when the first window is entered
+  // NaN until the first window: these hold doubles (epoch ticks beyond the small-integer range), so
+  // they start as doubles and V8 need not change the fields' representation when a window is entered
   private startHi = 0
   private startLo = Number.NaN
   private startT = Number.NaN
