@@ -126,21 +126,25 @@ try {
     writePartials(join(root, 'partials', `ar1-${i}.parquet`), scale.lagPartials, { connection }),
   )
   const replaceWindowStarts = [...new Set(scale.fits.map((f) => f.window_start))]
-  await firstAndMedian('fits + shifts, replaceWindows staged (snappy)', reps, async (i) => {
-    for (const [table, tableRows] of [
-      ['fits', scale.fits],
-      ['shifts', scale.shifts],
-    ] as const) {
-      await replaceWindows(table, tableRows as never, {
-        keyColumns: ['series'],
-        compression: 'snappy',
-        connection,
-        dir: join(root, `run-${i}`, table),
-        stagingDir: join(root, `run-${i}`, 'staging', table),
-        replaceWindowStarts,
-      })
-    }
-  })
+  await firstAndMedian(
+    'fits + shifts, replaceWindows staged (zstd, the default output.compression)',
+    reps,
+    async (i) => {
+      for (const [table, tableRows] of [
+        ['fits', scale.fits],
+        ['shifts', scale.shifts],
+      ] as const) {
+        await replaceWindows(table, tableRows as never, {
+          keyColumns: ['series'],
+          compression: 'zstd',
+          connection,
+          dir: join(root, `run-${i}`, table),
+          stagingDir: join(root, `run-${i}`, 'staging', table),
+          replaceWindowStarts,
+        })
+      }
+    },
+  )
   const staged = (i: number): Promise<Buffer[]> =>
     listTableFiles('fits', join(root, `run-${i}`, 'staging', 'fits')).then((files) =>
       Promise.all(files.map((f) => readFile(f))),
