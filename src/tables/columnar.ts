@@ -7,8 +7,10 @@
  * DuckDB reads the arrays during the COPY itself; no temp table is created.
  *
  * How:
- * - {@link gatherColumn} checks every value of one column and stores it: numbers (counts, epoch ms, doubles) in a
+ * - The caller gathers each column into a {@link GatheredColumn}: numbers (counts, epoch ms, doubles) in a
  *   Float64Array, booleans as 0/1, strings as codes into a dictionary of their distinct values, plus a null mask.
+ *   {@link gatherColumn} does it for one column with a check per value; the table writers first try the one-pass
+ *   gatherer of gather.ts, the partials store has its own loop.
  * - {@link withColumnarRows} registers the table function `slopeshift_columns(source, range)` on the connection
  *   (once) and lends it the columns while `work` runs. DuckDB pulls 2,048 rows per call straight from the arrays, in
  *   the caller's row order and restricted to one range of it (e.g. one partition). Strings travel as INTEGER codes;
@@ -21,7 +23,9 @@
  *   literal of its type, computed by the same cast from the same double, so the values are the same.
  *
  * Rows come out of the function in the order given (one scan thread, no ORDER BY needed when the caller sorted).
- * The Parquet bytes are those of the temp-table path for the same rows in the same order: same types, same values.
+ * The Parquet bytes are those of the temp-table path for the same rows in the same order: same types, same values
+ * (compared file by file against the previous writer when this replaced it: fits, shifts, runs, merges, partials,
+ * zstd and snappy, 150,000 rows in two row groups on 4 threads).
  */
 import {
   BOOLEAN,
