@@ -11,6 +11,7 @@ export interface MergedState {
   readonly id: string
   readonly key: SeriesKey
   readonly windowStartMs: number
+  /** Read-only: shared with the input partial when there was exactly one. */
   readonly moments: Moments
   /** How many partials (files) contributed. */
   readonly parts: number
@@ -49,8 +50,9 @@ export function mergePartials(partials: Iterable<PartialMoments>): MergedState[]
       const list = windows.get(start) as PartialMoments[]
       if (list.length > 1) list.sort(comparePartials)
       const first = list[0] as PartialMoments
-      let m = emptyMoments(first.moments.lag !== null)
-      for (const p of list) m = mergeMoments(m, p.moments)
+      // One partial with rows (every window of a first run): its moments are the merge, as they are.
+      let m = list.length === 1 && first.moments.n > 0 ? first.moments : emptyMoments(first.moments.lag !== null)
+      if (m !== first.moments) for (const p of list) m = mergeMoments(m, p.moments)
       out.push({ id, key: first.key, windowStartMs: start, moments: m, parts: list.length })
     }
   }
