@@ -185,4 +185,25 @@ describe('gcPartials', () => {
     expect(await readdir(join(root, '_state', 'partials'))).toEqual([basename(keep)])
     expect(await gcPartials(root, ledger)).toEqual([])
   })
+
+  it('removes an orphan left beside every committed file, and nothing when only committed files are there', async () => {
+    const entries = ['/lake/a.parquet', '/lake/b.parquet'].map((p, i) => ({
+      path: p,
+      size: 1,
+      mtimeMs: 1,
+      fingerprint: String(i + 1).repeat(64),
+      runId: 'r',
+    }))
+    for (const t of ledgerPartialsFiles(root, entries)) await writePartials(t, [])
+    expect(await gcPartials(root, { files: entries })).toEqual([])
+    // A crashed run's partials of a file it never committed: one name more than the ledger lists.
+    const orphan = partialsFilePath(root, '/lake/c.parquet', '9'.repeat(64))
+    await writePartials(orphan, [])
+    expect(await gcPartials(root, { files: entries })).toEqual([basename(orphan)])
+    expect((await readdir(join(root, '_state', 'partials'))).sort()).toEqual(
+      ledgerPartialsFiles(root, entries)
+        .map((f) => basename(f))
+        .sort(),
+    )
+  })
 })
