@@ -1,5 +1,6 @@
 /** Builds the reader plan from the config. Pure. */
 import type { Config } from '../config/schema.js'
+import type { DiscoverOptions } from '../dataset/discover.js'
 import { parseWindow, type WindowSpec } from '../kernel/window.js'
 import type { MomentsPlan } from '../types.js'
 
@@ -30,4 +31,9 @@ export function baselineLabel(config: Config): string {
   const k = config.detect.baselineWindows
   if (k === 1) return 'previous window'
   return `${k} previous windows, ${config.detect.baselineKind === 'merged-line' ? 'merged line' : 'common slope'}`
+}
+
+/** How a run discovers its input files: the configured format, never inside the output root. */
+export function discoverOptionsOf(config: Config): DiscoverOptions {
+  return { format: config.source.format, exclude: [config.output.root] }
 }

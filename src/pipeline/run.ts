@@ -12,7 +12,7 @@
 import path from 'node:path'
 import type { DuckDBConnection } from '@duckdb/node-api'
 import type { Config } from '../config/schema.js'
-import { discoverFiles } from '../dataset/discover.js'
+import { type Discovery, discoverFiles } from '../dataset/discover.js'
 import { openDuckDb } from '../dataset/duckdb.js'
 import { NoInputError } from '../errors.js'
 import { type MergedState, mergePartials } from '../kernel/merge-partials.js'
@@ -39,7 +39,7 @@ import { listTableFiles } from '../tables/read.js'
 import { replacePartitions, replaceWindows } from '../tables/write.js'
 import type { PartialMoments, SourceFile } from '../types.js'
 import { fitRows } from './fit-rows.js'
-import { momentsPlanOf, windowSpecOf } from './plan.js'
+import { discoverOptionsOf, momentsPlanOf, windowSpecOf } from './plan.js'
 import { readPartials } from './read.js'
 import { shiftRows } from './shift-rows.js'
 import { newRunId, type RunSummary, runRowOf, verdictCounts } from './summary.js'
@@ -66,6 +66,11 @@ export interface RunDeps {
   readonly onRows?: (rows: number) => void
   /** Test hook: the fetch used for webhooks (default global fetch). */
   readonly fetch?: typeof fetch
+  /**
+   * Input discovery already started by the caller with `discoverOptionsOf(config)` (the CLI starts it in
+   * a worker thread while the engines load); default: discover here, after taking the lock.
+   */
+  readonly discovery?: Promise<Discovery>
 }
 
 /** Runs the job once; returns its summary. Throws SlopeshiftError subclasses for expected failures. */
@@ -111,7 +116,7 @@ async function runLocked(
   log.info({ window: window.label, xUnit: config.window.xUnit, full: options.full === true }, 'run started')
 
   // Discover and plan.
-  const discovery = await discoverFiles(config.source.paths, { format: config.source.format, exclude: [root] })
+  const discovery = await (deps.discovery ?? discoverFiles(config.source.paths, discoverOptionsOf(config)))
   for (const f of discovery.ignored) log.debug({ file: f.path, reason: f.reason }, 'file ignored')
   if (discovery.files.length === 0 && ledger.files.length === 0) {
     throw new NoInputError(

@@ -1,6 +1,8 @@
+import { existsSync } from 'node:fs'
 import { mkdir, mkdtemp, writeFile } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
 import path from 'node:path'
+import { pathToFileURL } from 'node:url'
 import { describe, expect, it } from 'vitest'
 import { discoverFiles, hiveSegments, splitGlob } from '../../src/dataset/discover.js'
 
@@ -83,3 +85,35 @@ describe('splitGlob', () => {
     expect(pattern.test('/lake/a/b/x.arrow')).toBe(false)
   })
 })
+
+// The worker path needs the built worker script (dist/); from TypeScript sources it falls back to this thread.
+const builtThread = path.join(import.meta.dirname, '..', '..', 'dist', 'dataset', 'discover-thread.js')
+const hasBuiltThread = existsSync(builtThread)
+
+describe.skipIf(!hasBuiltThread)(
+  `discoverInWorker (${hasBuiltThread ? 'built' : `${builtThread} missing: run npm run build`})`,
+  () => {
+    type Thread = typeof import('../../src/dataset/discover-thread.js')
+    const load = async (): Promise<Thread> => (await import(pathToFileURL(builtThread).href)) as Thread
+
+    it('runs in a worker and finds exactly what discoverFiles finds', async () => {
+      const { discoverInWorker, discoverWorkerScript } = await load()
+      expect(discoverWorkerScript()).toMatch(/discover-worker\.js$/)
+      const root = await lake()
+      const options = { exclude: [path.join(root, '_state')] }
+      expect(await discoverInWorker([root], options)).toEqual(await discoverFiles([root], options))
+    })
+
+    it('rejects with the same error classes, codes and messages', async () => {
+      const { discoverInWorker } = await load()
+      const root = await lake()
+      const missing = path.join(root, 'no-such-folder')
+      const fromWorker = await discoverInWorker([missing]).catch((e: unknown) => e)
+      const here = await discoverFiles([missing]).catch((e: unknown) => e)
+      expect(fromWorker).toMatchObject({ code: 'SLOPESHIFT_NO_INPUT', exitCode: 66, message: (here as Error).message })
+      const notData = await discoverInWorker([path.join(root, 'notes.txt')]).catch((e: unknown) => e)
+      expect(notData).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
+      expect((notData as Error).message).toMatch(/notes\.txt is not a Parquet or Arrow IPC file/)
+    })
+  },
+)

@@ -1,5 +1,7 @@
 import type { CommandModule } from 'yargs'
+import { discoverInWorker } from '../../dataset/discover-thread.js'
 import { UsageError } from '../../errors.js'
+import { discoverOptionsOf } from '../../pipeline/plan.js'
 import type { RunSummary } from '../../pipeline/summary.js'
 import type { CliDeps } from '../deps.js'
 import { createProgress } from '../progress.js'
@@ -53,11 +55,12 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
     handler: async (args) => {
       const range = timeRange(args.from, args.to)
       // Loaded on demand: `--help`, `--version` and other commands start without the engines.
-      const [{ loadConfig }, { runJob }] = await Promise.all([
-        import('../../config/load.js'),
-        import('../../pipeline/run.js'),
-      ])
+      const { loadConfig } = await import('../../config/load.js')
       const { config } = await loadConfig(args.config)
+      // List the inputs in a worker thread while this one loads the engines (10,000 folders: ~0.3 s).
+      const discovery = discoverInWorker(config.source.paths, discoverOptionsOf(config))
+      discovery.catch(() => undefined) // the run reports it; a run that fails earlier must not crash on it
+      const { runJob } = await import('../../pipeline/run.js')
       const progress = createProgress(deps.log, args.progress && deps.isTty, deps.now)
       let summary: RunSummary
       try {
@@ -70,7 +73,7 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
             noDeliver: !args.deliver,
             ...range,
           },
-          { ...deps, onRows: progress.onRows },
+          { ...deps, onRows: progress.onRows, discovery },
         )
       } finally {
         progress.done()
