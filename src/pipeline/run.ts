@@ -20,7 +20,7 @@ import { msPerXUnit, previousWindowStart, type WindowSpec, windowEndOf, windowSt
 import type { Logger } from '../log.js'
 import { flushOutbox, undeliveredError } from '../notify/flush.js'
 import { stageDigests } from '../notify/stage.js'
-import { type FilePlan, ledgerAfter, planFiles } from '../plan/files.js'
+import { entriesTouching, type FilePlan, ledgerAfter, planFiles, type WindowSpan } from '../plan/files.js'
 import { affectedWindowStarts, windowStartsBetween } from '../plan/windows.js'
 import { fingerprintFiles } from '../store/fingerprint.js'
 import { commitLedger, emptyLedger, type Ledger, readLedger } from '../store/ledger.js'
@@ -191,7 +191,15 @@ async function runLocked(
       : await readStoredPartials(
           ledgerPartialsFiles(
             root,
-            filePlan.unchanged.map((f) => ({ path: f.path, fingerprint: f.fingerprint ?? '' })),
+            // Only files whose partials hold one of these windows (all files when the span is unknown).
+            entriesTouching(
+              filePlan.unchanged.map((f) => ({
+                path: f.path,
+                fingerprint: f.fingerprint ?? '',
+                windows: f.previous?.windows ?? null,
+              })),
+              [...readStarts],
+            ),
           ),
           { windowStarts: [...readStarts], connection },
         )
@@ -296,12 +304,13 @@ async function runLocked(
   signal?.throwIfAborted()
   lap('digests staged')
   await publish(staging, root, { remove })
-  await commitLedger(root, runId, ledgerAfter(filePlan, runId), { maxTsMs, watermarkMs })
+  const entries = ledgerAfter(filePlan, runId, windowSpans(read.partials))
+  await commitLedger(root, runId, entries, { maxTsMs, watermarkMs })
   lap('published and committed')
   await discardStaging(staging)
   // Partials of replaced and deleted files go now; a run that replaced nothing has nothing to collect.
   if (options.full === true || filePlan.changed.length > 0 || filePlan.deleted.length > 0) {
-    await gcPartials(root, { files: ledgerAfter(filePlan, runId) })
+    await gcPartials(root, { files: entries })
   }
   log.info({ files: toRead.length, rows: rowsRead, fits: fits.length, shifts: shifts.length }, 'run committed')
 
@@ -378,6 +387,20 @@ function closedSince(spec: WindowSpec, previousMs: number | null, currentMs: num
     const end = windowEndOf(spec, s)
     if (end > previousMs && end <= currentMs) out.push(s)
     if (out.length > 100_000) break
+  }
+  return out
+}
+
+/** First and last window start of each file's partials (every partial counts, even one of skipped rows only). */
+function windowSpans(partials: readonly PartialMoments[]): Map<string, WindowSpan> {
+  const out = new Map<string, [number, number]>()
+  for (const p of partials) {
+    const span = out.get(p.file)
+    if (span === undefined) out.set(p.file, [p.windowStartMs, p.windowStartMs])
+    else {
+      if (p.windowStartMs < span[0]) span[0] = p.windowStartMs
+      if (p.windowStartMs > span[1]) span[1] = p.windowStartMs
+    }
   }
   return out
 }

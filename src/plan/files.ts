@@ -17,6 +17,39 @@ export interface LedgerEntry {
   readonly fingerprint: string
   /** Id of the run that read it. */
   readonly runId: string
+  /**
+   * First and last window start (epoch ms) of the file's partials, so a run opens only the partials
+   * files that hold a window it re-merges. Absent or null: unknown (entries of older ledgers, files
+   * without partials), and the file's partials are always read.
+   */
+  readonly windows?: WindowSpan | null | undefined
+}
+
+/** `[first, last]` window start (epoch ms), inclusive. */
+export type WindowSpan = readonly [number, number]
+
+/**
+ * The entries whose partials may hold one of `starts` (window starts, epoch ms): those with a window
+ * span containing a start, and those whose span is unknown. Pure; keeps the input order.
+ */
+export function entriesTouching<E extends Pick<LedgerEntry, 'windows'>>(
+  entries: readonly E[],
+  starts: readonly number[],
+): E[] {
+  const sorted = [...starts].sort((a, b) => a - b)
+  return entries.filter((e) => {
+    const span = e.windows
+    if (span === undefined || span === null) return true
+    // First start ≥ span[0]; the entry is touched when it is ≤ span[1].
+    let lo = 0
+    let hi = sorted.length
+    while (lo < hi) {
+      const mid = (lo + hi) >>> 1
+      if ((sorted[mid] as number) < span[0]) lo = mid + 1
+      else hi = mid
+    }
+    return lo < sorted.length && (sorted[lo] as number) <= span[1]
+  })
 }
 
 /** What discovery knows about a file before reading it. */
@@ -144,25 +177,40 @@ export function planFiles(
  * The ledger entries to commit after a run that read the `new` and `changed` files of `plan`:
  * those get `runId` and their new fingerprint; `unchanged` files keep the run id that read them,
  * with their current size and mtime (so a touched file is not fingerprinted again next time);
- * `deleted` files are dropped. Sorted by path.
+ * `deleted` files are dropped. Sorted by path. `spans` gives the window span of each file read this
+ * run (absent: unknown); unchanged files keep the span their entry had.
  *
  * @throws Error (a bug, exit 70) when a new or changed file has no fingerprint: fingerprint every
  *   path `filesToFingerprint` lists before planning.
  */
-export function ledgerAfter(plan: FilePlan, runId: string): LedgerEntry[] {
+export function ledgerAfter(
+  plan: FilePlan,
+  runId: string,
+  spans: ReadonlyMap<string, WindowSpan> = new Map(),
+): LedgerEntry[] {
   const out: LedgerEntry[] = []
   for (const f of plan.unchanged) {
+    const windows = f.previous?.windows
     out.push({
       path: f.path,
       size: f.size,
       mtimeMs: f.mtimeMs,
       fingerprint: f.fingerprint ?? f.previous?.fingerprint ?? '',
       runId: f.previous?.runId ?? runId,
+      ...(windows === undefined || windows === null ? {} : { windows }),
     })
   }
   for (const f of [...plan.new, ...plan.changed]) {
     if (f.fingerprint === null) throw new Error(`no fingerprint for ${f.path}; fingerprint it before planning`)
-    out.push({ path: f.path, size: f.size, mtimeMs: f.mtimeMs, fingerprint: f.fingerprint, runId })
+    const windows = spans.get(f.path)
+    out.push({
+      path: f.path,
+      size: f.size,
+      mtimeMs: f.mtimeMs,
+      fingerprint: f.fingerprint,
+      runId,
+      ...(windows === undefined ? {} : { windows }),
+    })
   }
   return out.sort((a, b) => comparePaths(a.path, b.path))
 }

@@ -43,6 +43,7 @@ const entrySchema = z
     mtimeMs: z.number().nonnegative(),
     fingerprint: z.string().regex(/^[0-9a-f]{64}$/, 'must be a hex SHA-256'),
     runId: z.string().min(1),
+    windows: z.tuple([z.number(), z.number()]).nullable().optional(),
   })
   .strict()
 
@@ -129,7 +130,14 @@ export async function commitLedger(
     version: ledgerVersion,
     committedRunId: runId,
     files: [...files]
-      .map((e) => ({ path: e.path, size: e.size, mtimeMs: e.mtimeMs, fingerprint: e.fingerprint, runId: e.runId }))
+      .map((e) => ({
+        path: e.path,
+        size: e.size,
+        mtimeMs: e.mtimeMs,
+        fingerprint: e.fingerprint,
+        runId: e.runId,
+        ...(e.windows === undefined || e.windows === null ? {} : { windows: e.windows }),
+      }))
       .sort((a, b) => comparePaths(a.path, b.path)),
     maxTsMs: meta.maxTsMs,
     watermarkMs: meta.watermarkMs,

@@ -63,5 +63,12 @@ describe.skipIf(!hasBuiltCli)(`runJob via the CLI (${hasBuiltCli ? 'built' : noC
     expect(facts(ledgerAfter)).toEqual(facts(ledgerBefore))
     expect(ledgerAfter.committedRunId).toBe(s?.run_id)
     expect(ledgerAfter.watermarkMs).toBe(ledgerBefore.watermarkMs)
+    // Every entry knows the window span of its partials (so later runs open only the files they need),
+    // and the rerun kept the spans.
+    for (const f of ledgerAfter.files) {
+      expect(f.windows).toBeTruthy()
+      expect((f.windows as readonly number[])[0]).toBeLessThanOrEqual((f.windows as readonly number[])[1] as number)
+    }
+    expect(ledgerAfter.files.map((f) => f.windows)).toEqual(ledgerBefore.files.map((f) => f.windows))
   })
 })

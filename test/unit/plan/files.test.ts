@@ -1,6 +1,12 @@
 import { describe, expect, it } from 'vitest'
 import type { LedgerEntry, StatFile } from '../../../src/plan/files.js'
-import { filesToFingerprint, isStatUnchanged, ledgerAfter, planFiles } from '../../../src/plan/files.js'
+import {
+  entriesTouching,
+  filesToFingerprint,
+  isStatUnchanged,
+  ledgerAfter,
+  planFiles,
+} from '../../../src/plan/files.js'
 
 const entry = (path: string, size: number, mtimeMs: number, fingerprint: string): LedgerEntry => ({
   path,
@@ -131,8 +137,44 @@ describe('ledgerAfter', () => {
     ])
   })
 
+  it('records the window span of files read this run and keeps the span of unchanged files', () => {
+    const spanned = { ...entry('/lake/site=north/a.parquet', 100, 1000, 'fa'), windows: [10, 20] as const }
+    const discovered: StatFile[] = [
+      { path: '/lake/site=north/a.parquet', size: 100, mtimeMs: 1000 },
+      { path: '/lake/site=north/b.parquet', size: 200, mtimeMs: 2000 },
+      { path: '/lake/site=north/n.parquet', size: 5, mtimeMs: 5 },
+    ]
+    const plan = planFiles(
+      discovered,
+      [spanned, ledger[1] as LedgerEntry],
+      new Map([['/lake/site=north/n.parquet', 'fn']]),
+    )
+    const after = ledgerAfter(plan, 'run-2', new Map([['/lake/site=north/n.parquet', [30, 40] as const]]))
+    expect(after.map((e) => [e.path, e.windows ?? null])).toEqual([
+      ['/lake/site=north/a.parquet', [10, 20]],
+      ['/lake/site=north/b.parquet', null],
+      ['/lake/site=north/n.parquet', [30, 40]],
+    ])
+  })
+
   it('refuses a read file without a fingerprint', () => {
     const plan = planFiles([{ path: '/new.parquet', size: 1, mtimeMs: 1 }], [])
     expect(() => ledgerAfter(plan, 'run-2')).toThrow('no fingerprint for /new.parquet; fingerprint it before planning')
+  })
+})
+
+describe('entriesTouching', () => {
+  it('keeps entries whose span holds a window start, and entries with no span', () => {
+    const e = (name: string, windows: readonly [number, number] | null | undefined) => ({ name, windows })
+    const entries = [
+      e('before', [0, 9]),
+      e('holds', [10, 30]),
+      e('after', [31, 50]),
+      e('unknown', null),
+      e('old', undefined),
+    ]
+    expect(entriesTouching(entries, [30, 12]).map((x) => x.name)).toEqual(['holds', 'unknown', 'old'])
+    expect(entriesTouching(entries, [9, 31]).map((x) => x.name)).toEqual(['before', 'after', 'unknown', 'old'])
+    expect(entriesTouching(entries, []).map((x) => x.name)).toEqual(['unknown', 'old'])
   })
 })
