@@ -11,6 +11,11 @@ export interface DuckDbOptions {
   readonly threads: number
   /** DuckDB memory limit such as `512MB` or `2GiB` (default: DuckDB's own, 80% of RAM). */
   readonly memoryLimit?: string
+  /**
+   * Folder for data DuckDB spills beyond `memoryLimit` (created when first needed, emptied on close).
+   * Default: DuckDB's own, `.tmp` in the process's working folder, which a scheduled job may not own.
+   */
+  readonly tempDirectory?: string
 }
 
 /** One open instance + connection. Close it when done; `close()` is idempotent. */
@@ -37,6 +42,7 @@ export async function openDuckDb(options: DuckDbOptions): Promise<DuckDbSession>
     autoload_known_extensions: 'false',
   }
   if (options.memoryLimit !== undefined) config.memory_limit = options.memoryLimit
+  if (options.tempDirectory !== undefined) config.temp_directory = options.tempDirectory
   const instance = await DuckDBInstance.create(':memory:', config)
   let connection: DuckDBConnection
   try {

@@ -17,7 +17,7 @@
  * `in_order` true by construction and hide unsorted files.
  */
 import type { DuckDBDataChunk, DuckDBMaterializedResult } from '@duckdb/node-api'
-import { DataError, NoInputError } from '../errors.js'
+import { ConfigError, DataError, NoInputError } from '../errors.js'
 import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Moments } from '../kernel/moments.js'
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import { seriesId } from '../types.js'
@@ -29,6 +29,8 @@ export interface ReadParquetOptions {
   readonly threads: number
   /** DuckDB memory limit, e.g. `1GB` (default: DuckDB's own). */
   readonly memoryLimit?: string
+  /** Where DuckDB spills beyond the memory limit (see `DuckDbOptions.tempDirectory`). */
+  readonly tempDirectory?: string
   /** Aborts between steps and interrupts a running query. */
   readonly signal?: AbortSignal
 }
@@ -62,11 +64,11 @@ export async function readParquetPartials(
   const { signal } = options
   signal?.throwIfAborted()
   if (files.length === 0) return { partials: [], stats: [] }
-  const db = await openDuckDb(
-    options.memoryLimit === undefined
-      ? { threads: options.threads }
-      : { threads: options.threads, memoryLimit: options.memoryLimit },
-  )
+  const db = await openDuckDb({
+    threads: options.threads,
+    ...(options.memoryLimit === undefined ? {} : { memoryLimit: options.memoryLimit }),
+    ...(options.tempDirectory === undefined ? {} : { tempDirectory: options.tempDirectory }),
+  })
   const onAbort = () => db.interrupt()
   signal?.addEventListener('abort', onAbort, { once: true })
   try {
@@ -374,6 +376,13 @@ async function runScan(
     const msg = err instanceof Error ? err.message : String(err)
     if (/^(Binder|Parser|Catalog) Error/.test(msg)) throw err
     const file = files.find((f) => msg.includes(f.path))?.path ?? files.map((f) => f.path).join(', ')
+    if (/^Out of Memory Error/.test(msg)) {
+      // Not the file's fault: the engine's memory limit is too small for this scan (it already spilled what it could).
+      throw new ConfigError(
+        `reading ${file} ran out of engine memory (${msg.split('\n')[0]}); raise engine.memoryLimit or lower engine.threads in the config`,
+        { context: { file }, cause: err },
+      )
+    }
     throw new DataError(
       `reading ${file} failed (${msg.split('\n')[0]}); replace the file or remove it from the dataset`,
       { context: { file }, cause: err },

@@ -10,6 +10,8 @@ import type { MomentsPlan, PartialMoments, ReadStats, SourceFile } from '../type
 export interface ReadOptions {
   readonly threads: number
   readonly memoryLimit: string
+  /** Where DuckDB spills beyond the memory limit. */
+  readonly tempDirectory?: string
   readonly signal?: AbortSignal
   readonly log: Logger
   /** Called with the running total of rows read, at least once per file. */
@@ -37,6 +39,7 @@ export async function readPartials(
     const r = await readParquetPartials(parquet, plan, {
       threads: options.threads,
       memoryLimit: options.memoryLimit,
+      ...(options.tempDirectory === undefined ? {} : { tempDirectory: options.tempDirectory }),
       ...(options.signal ? { signal: options.signal } : {}),
     })
     partials.push(...r.partials)

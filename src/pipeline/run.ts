@@ -84,7 +84,11 @@ export async function runJob(config: Config, options: RunOptions, deps: RunDeps)
   try {
     // One DuckDB session for the run's own state and tables: a session per partials file or table
     // would cost an engine start each (measured: 1,000 new files took minutes instead of seconds).
-    const db = await openDuckDb({ threads: config.engine.threads, memoryLimit: config.engine.memoryLimit })
+    const db = await openDuckDb({
+      threads: config.engine.threads,
+      memoryLimit: config.engine.memoryLimit,
+      tempDirectory: spillDir(root),
+    })
     try {
       return await runLocked(config, options, { ...deps, log }, runId, startedAt, db.connection)
     } finally {
@@ -141,6 +145,7 @@ async function runLocked(
   const read = await readPartials(toRead, plan, {
     threads: config.engine.threads,
     memoryLimit: config.engine.memoryLimit,
+    tempDirectory: spillDir(root),
     log,
     ...(signal ? { signal } : {}),
     ...(deps.onRows ? { onRows: deps.onRows } : {}),
@@ -403,4 +408,9 @@ function windowSpans(partials: readonly PartialMoments[]): Map<string, WindowSpa
     }
   }
   return out
+}
+
+/** `<root>/_state/spill`: DuckDB's spill folder, on the job's own volume instead of the working folder. */
+function spillDir(root: string): string {
+  return path.join(root, '_state', 'spill')
 }

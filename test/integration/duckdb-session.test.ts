@@ -1,0 +1,29 @@
+import { mkdtemp } from 'node:fs/promises'
+import { tmpdir } from 'node:os'
+import path from 'node:path'
+import { describe, expect, it } from 'vitest'
+import { openDuckDb } from '../../src/dataset/duckdb.js'
+
+describe('openDuckDb', () => {
+  it('applies threads, memory limit, spill folder and the UTC session zone', async () => {
+    const spill = path.join(await mkdtemp(path.join(tmpdir(), 'slopeshift-duckdb-')), 'spill')
+    const db = await openDuckDb({ threads: 1, memoryLimit: '256MB', tempDirectory: spill })
+    try {
+      const r = await db.run(
+        "SELECT current_setting('threads'), current_setting('memory_limit'), current_setting('temp_directory'), current_setting('TimeZone')",
+      )
+      const [threads, memory, temp, zone] = ((await r.getRowsJS())[0] ?? []) as unknown[]
+      expect(Number(threads)).toBe(1)
+      // DuckDB reports the limit in its own units (256MB → "244.1 MiB").
+      expect(String(memory)).toBe('244.1 MiB')
+      expect(temp).toBe(spill)
+      expect(zone).toBe('UTC')
+    } finally {
+      db.close()
+    }
+  })
+
+  it('refuses a thread count that is not a positive integer', async () => {
+    await expect(openDuckDb({ threads: 0 })).rejects.toThrow('threads must be a positive integer, got 0')
+  })
+})
