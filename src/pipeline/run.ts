@@ -9,6 +9,7 @@
  * published by renames that `recoverStaging` rolls back unless the ledger committed. A rerun after
  * any crash redoes the same work from the same committed state and converges to the same tables.
  */
+import { rm } from 'node:fs/promises'
 import path from 'node:path'
 import type { DuckDBConnection } from '@duckdb/node-api'
 import type { Config } from '../config/schema.js'
@@ -82,6 +83,8 @@ export async function runJob(config: Config, options: RunOptions, deps: RunDeps)
   await ensureDir(root)
   const release = await acquireRunLock(root, { runId, waitMs: options.lockWaitMs ?? 0 })
   try {
+    // Spill files a killed run left behind (DuckDB removes its own on a clean close); we hold the lock.
+    await rm(spillDir(root), { recursive: true, force: true })
     // One DuckDB session for the run's own state and tables: a session per partials file or table
     // would cost an engine start each (measured: 1,000 new files took minutes instead of seconds).
     const db = await openDuckDb({

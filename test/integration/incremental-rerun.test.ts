@@ -3,7 +3,8 @@
  * partition, and leaves fits/ and shifts/ row-for-row and byte-for-byte identical. The built CLI is spawned on a
  * small invented lake (test/helpers/lake.ts).
  */
-import { mkdtemp, rm } from 'node:fs/promises'
+import { existsSync } from 'node:fs'
+import { mkdir, mkdtemp, rm, writeFile } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
 import path from 'node:path'
 import { afterAll, beforeAll, describe, expect, it } from 'vitest'
@@ -41,8 +42,13 @@ describe.skipIf(!hasBuiltCli)(`runJob via the CLI (${hasBuiltCli ? 'built' : noC
     expect(tablesBefore.length).toBeGreaterThan(0)
     expect(outputsBefore.fits.length).toBe(6 * 4)
 
+    // A spill file a killed run left behind is removed by the next run (which holds the lock).
+    await mkdir(path.join(root, '_state', 'spill'), { recursive: true })
+    await writeFile(path.join(root, '_state', 'spill', 'duckdb_temp_storage_DEFAULT-0.tmp'), 'left over')
+
     const second = await runCli(['run', '--config', config, '--json'])
     expect(second.code, describeResult(second)).toBe(0)
+    expect(existsSync(path.join(root, '_state', 'spill'))).toBe(false)
     const s = second.summary
     expect(s?.files).toMatchObject({ new: 0, changed: 0, deleted: 0, skipped: 4, read: 0 })
     expect(s?.rows).toEqual({ read: 0, skipped: 0 })
