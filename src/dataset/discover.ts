@@ -49,8 +49,8 @@ export async function discoverFiles(inputs: readonly string[], options: Discover
     const abs = path.resolve(input)
     if (isGlob(abs)) {
       const { root, pattern } = splitGlob(abs)
-      for (const file of walk(root, exclude)) {
-        if (pattern.test(file)) await addFile(file, root, false)
+      for (const { file, hive } of walk(root, exclude, noHive)) {
+        if (pattern.test(file)) await addFile(file, hive, false)
       }
       continue
     }
@@ -61,13 +61,13 @@ export async function discoverFiles(inputs: readonly string[], options: Discover
       })
     }
     if (st.isDirectory()) {
-      for (const file of walk(abs, exclude)) await addFile(file, abs, false)
-    } else await addFile(abs, path.dirname(abs), true)
+      for (const { file, hive } of walk(abs, exclude, noHive)) await addFile(file, hive, false)
+    } else await addFile(abs, noHive, true)
   }
   const files = [...found.values()].sort((a, b) => (a.path < b.path ? -1 : a.path > b.path ? 1 : 0))
   return { files, ignored }
 
-  async function addFile(file: string, root: string, explicit: boolean): Promise<void> {
+  async function addFile(file: string, hive: Readonly<Record<string, string>>, explicit: boolean): Promise<void> {
     if (found.has(file)) return
     const base = path.basename(file)
     if (!explicit && (base.startsWith('_') || base.startsWith('.'))) {
@@ -75,7 +75,9 @@ export async function discoverFiles(inputs: readonly string[], options: Discover
       return
     }
     const st = statSync(file)
-    const kind = await detectKind(file, st.size, options.format ?? 'auto')
+    const format = options.format ?? 'auto'
+    // The extension settles almost every file without a promise; only the others read magic bytes.
+    const kind = kindFromExtension(file, format) ?? (await detectKind(file, st.size, format))
     if (kind === null) {
       const reason = `not a Parquet or Arrow IPC file (extension ${path.extname(file) || 'none'}, no known magic bytes)`
       if (explicit) {
@@ -94,7 +96,7 @@ export async function discoverFiles(inputs: readonly string[], options: Discover
       kind,
       size: st.size,
       mtimeMs: Math.trunc(st.mtimeMs),
-      hive: hiveSegments(file, root),
+      hive,
     })
   }
 }
@@ -105,9 +107,8 @@ export async function detectKind(
   size: number,
   format: 'auto' | 'parquet' | 'arrow',
 ): Promise<FileKind | null> {
-  const ext = path.extname(file).toLowerCase()
-  const fromExt = byExtension[ext]
-  if (fromExt !== undefined && (format === 'auto' || fromExt.startsWith(format))) return fromExt
+  const fromExt = kindFromExtension(file, format)
+  if (fromExt !== null) return fromExt
   if (size === 0) return null
   const head = Buffer.alloc(8)
   const fh = await open(file, 'r')
@@ -121,6 +122,14 @@ export async function detectKind(
   if (head.readUInt32LE(0) === 0xffffffff) return 'arrow-stream'
   return null
 }
+
+/** The kind a known extension gives, when it agrees with `format`; null otherwise. */
+function kindFromExtension(file: string, format: 'auto' | 'parquet' | 'arrow'): FileKind | null {
+  const fromExt = byExtension[path.extname(file).toLowerCase()]
+  return fromExt !== undefined && (format === 'auto' || fromExt.startsWith(format)) ? fromExt : null
+}
+
+const noHive: Readonly<Record<string, string>> = Object.freeze({})
 
 /** `name=value` folder segments between `root` and the file, outermost first. */
 export function hiveSegments(file: string, root: string): Record<string, string> {
@@ -166,7 +175,17 @@ function statOrNull(file: string): Stats | null {
   }
 }
 
-function walk(dir: string, exclude: readonly string[], out: string[] = []): string[] {
+/**
+ * Files below `dir`, each with the Hive segments of the folders between the walk's root and it (`hive`
+ * holds those of `dir`; a later segment of the same name wins, as in `hiveSegments`). Folders are
+ * parsed once, not once per file.
+ */
+function walk(
+  dir: string,
+  exclude: readonly string[],
+  hive: Readonly<Record<string, string>>,
+  out: { file: string; hive: Readonly<Record<string, string>> }[] = [],
+): { file: string; hive: Readonly<Record<string, string>> }[] {
   let entries: Dirent[]
   try {
     entries = readdirSync(dir, { withFileTypes: true })
@@ -177,12 +196,15 @@ function walk(dir: string, exclude: readonly string[], out: string[] = []): stri
     })
   }
   entries.sort((a, b) => (a.name < b.name ? -1 : a.name > b.name ? 1 : 0))
+  const prefix = dir.endsWith(path.sep) ? dir : dir + path.sep
   for (const e of entries) {
-    const p = path.join(dir, e.name)
+    const p = prefix + e.name
     if (e.isDirectory()) {
       if (exclude.some((x) => p === x) || e.name.startsWith('.') || e.name.startsWith('_')) continue
-      walk(p, exclude, out)
-    } else if (e.isFile()) out.push(p)
+      const eq = e.name.indexOf('=')
+      const inner = eq > 0 ? { ...hive, [e.name.slice(0, eq)]: decodeURIComponent(e.name.slice(eq + 1)) } : hive
+      walk(p, exclude, inner, out)
+    } else if (e.isFile()) out.push({ file: p, hive })
   }
   return out
 }
