@@ -87,19 +87,43 @@ export async function runJob(config: Config, options: RunOptions, deps: RunDeps)
     await rm(spillDir(root), { recursive: true, force: true })
     // One DuckDB session for the run's own state and tables: a session per partials file or table
     // would cost an engine start each (measured: 1,000 new files took minutes instead of seconds).
-    const db = await openDuckDb({
+    // It starts in the background while the committed state is read.
+    const opening = openDuckDb({
       threads: config.engine.threads,
       memoryLimit: config.engine.memoryLimit,
       tempDirectory: spillDir(root),
     })
+    let committed: Ledger
     try {
-      return await runLocked(config, options, { ...deps, log }, runId, startedAt, db.connection)
+      committed = await settleState(root, log)
+    } catch (err) {
+      await opening.then(
+        (db) => db.close(),
+        () => undefined,
+      )
+      throw err
+    }
+    const db = await opening
+    try {
+      return await runLocked(config, options, { ...deps, log }, runId, startedAt, db.connection, committed)
     } finally {
       db.close()
     }
   } finally {
     await release()
   }
+}
+
+/**
+ * The committed state a run starts from: the ledger, after rolling back a publish whose ledger never
+ * committed and dropping partials no committed entry references (both left by a killed run).
+ */
+async function settleState(root: string, log: Logger): Promise<Ledger> {
+  const committed = await readLedger(root)
+  const recovery = await recoverStaging(root, committed.committedRunId)
+  if (recovery.rolledBack.length > 0) log.warn({ runs: recovery.rolledBack }, 'uncommitted publish rolled back')
+  await gcPartials(root, committed)
+  return committed
 }
 
 async function runLocked(
@@ -109,16 +133,13 @@ async function runLocked(
   runId: string,
   startedAt: number,
   connection: DuckDBConnection,
+  committed: Ledger,
 ): Promise<RunSummary> {
   const { log, signal } = deps
   const root = config.output.root
   const window = windowSpecOf(config)
   const plan = momentsPlanOf(config)
   const k = config.detect.baselineWindows
-  const committed = await readLedger(root)
-  const recovery = await recoverStaging(root, committed.committedRunId)
-  if (recovery.rolledBack.length > 0) log.warn({ runs: recovery.rolledBack }, 'uncommitted publish rolled back')
-  await gcPartials(root, committed)
   const ledger: Ledger = options.full === true ? emptyLedger() : committed
   log.info({ window: window.label, xUnit: config.window.xUnit, full: options.full === true }, 'run started')
 

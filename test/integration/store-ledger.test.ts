@@ -43,6 +43,35 @@ describe('readLedger', () => {
   })
 })
 
+describe('readLedger entry checks', () => {
+  const good = (i: number) => ({ ...entry(`/lake/${i}.parquet`, 'a'), windows: [i * 10, i * 10 + 5] })
+  const write = (files: unknown[]) =>
+    mkdir(join(root, '_state'), { recursive: true }).then(() =>
+      writeFile(ledgerPath(root), JSON.stringify({ version: 1, committedRunId: 'r', files })),
+    )
+
+  it('reads good entries as they were written, window spans included', async () => {
+    const files = [good(1), good(2), entry('/lake/3.parquet', 'b')]
+    await write(files)
+    expect((await readLedger(root)).files).toEqual(files)
+  })
+
+  it.each([
+    ['a fingerprint that is not hex SHA-256', { fingerprint: 'xyz' }, /fingerprint/],
+    ['a negative size', { size: -1 }, /size/],
+    ['a fractional size', { size: 1.5 }, /size/],
+    ['an unknown field', { colour: 'red' }, /colour/],
+    ['a window span of three numbers', { windows: [1, 2, 3] }, /windows/],
+    ['an empty run id', { runId: '' }, /runId/],
+  ])('names the field when one entry among good ones has %s', async (_what, patch, field) => {
+    await write([good(1), { ...good(2), ...patch }, good(3)])
+    const err = await readLedger(root).catch((e: unknown) => e)
+    expect(err).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
+    expect((err as Error).message).toMatch(/is not a version 1 ledger/)
+    expect((err as Error).message).toMatch(field)
+  })
+})
+
 describe('commitLedger', () => {
   it('round-trips entries sorted by path and records the committed run id', async () => {
     await commitLedger(root, 'run-b', [entry('/lake/b.parquet', 'b'), entry('/lake/a.parquet', 'a')])
