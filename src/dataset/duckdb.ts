@@ -25,6 +25,11 @@ export interface DuckDbSession {
   run(sql: string): Promise<DuckDBMaterializedResult>
   /** Asks the running query to stop; it then rejects with an "interrupted" error. */
   interrupt(): void
+  /**
+   * Another connection to the same instance (UTC session zone), for statements that should run in
+   * parallel with the first; closed with the session.
+   */
+  connect(): Promise<DuckDBConnection>
   close(): void
 }
 
@@ -53,15 +58,26 @@ export async function openDuckDb(options: DuckDbOptions): Promise<DuckDbSession>
     throw err
   }
   let closed = false
+  const extra: DuckDBConnection[] = []
   return {
     connection,
     run: (sql) => connection.run(sql),
     interrupt: () => {
-      if (!closed) connection.interrupt()
+      if (closed) return
+      connection.interrupt()
+      for (const c of extra) c.interrupt()
+    },
+    connect: async () => {
+      if (closed) throw new Error('the DuckDB session is closed')
+      const c = await instance.connect()
+      extra.push(c)
+      await c.run("SET TimeZone = 'UTC'")
+      return c
     },
     close: () => {
       if (closed) return
       closed = true
+      for (const c of extra) c.closeSync()
       connection.closeSync()
       instance.closeSync()
     },

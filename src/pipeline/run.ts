@@ -105,7 +105,16 @@ export async function runJob(config: Config, options: RunOptions, deps: RunDeps)
     }
     const db = await opening
     try {
-      return await runLocked(config, options, { ...deps, log }, runId, startedAt, db.connection, committed)
+      return await runLocked(
+        config,
+        options,
+        { ...deps, log },
+        runId,
+        startedAt,
+        db.connection,
+        () => db.connect(),
+        committed,
+      )
     } finally {
       db.close()
     }
@@ -133,6 +142,7 @@ async function runLocked(
   runId: string,
   startedAt: number,
   connection: DuckDBConnection,
+  connect: () => Promise<DuckDBConnection>,
   committed: Ledger,
 ): Promise<RunSummary> {
   const { log, signal } = deps
@@ -177,9 +187,15 @@ async function runLocked(
   signal?.throwIfAborted()
   const byFile = groupByFile(read.partials)
   let mark = performance.now()
-  for (const f of [...filePlan.new, ...filePlan.changed]) {
-    await writePartials(partialsFilePath(root, f.path, f.fingerprint ?? ''), byFile.get(f.path) ?? [], { connection })
-  }
+  await writeAllPartials(
+    [...filePlan.new, ...filePlan.changed].map((f) => ({
+      target: partialsFilePath(root, f.path, f.fingerprint ?? ''),
+      partials: byFile.get(f.path) ?? [],
+    })),
+    connection,
+    connect,
+    signal,
+  )
   signal?.throwIfAborted()
 
   // Which windows change: partials replaced, baselines moved, windows closed by the new watermark, --from/--to.
@@ -437,4 +453,41 @@ function windowSpans(partials: readonly PartialMoments[]): Map<string, WindowSpa
 /** `<root>/_state/spill`: DuckDB's spill folder, on the job's own volume instead of the working folder. */
 function spillDir(root: string): string {
   return path.join(root, '_state', 'spill')
+}
+
+/** Partials files written at once: each is a small COPY whose time is mostly the engine's fixed cost per statement. */
+const partialsLanes = 4
+
+/**
+ * Writes each file's partials (store/partials.ts `writePartials`), up to `partialsLanes` at a time on
+ * their own connections: 1,000 new files took 7.2 s one by one. After a failure no lane starts another
+ * file, every lane settles, and the first error is thrown; files already written are content-addressed
+ * and unreferenced until the ledger commits, so the next run's GC removes them.
+ */
+async function writeAllPartials(
+  jobs: readonly { readonly target: string; readonly partials: readonly PartialMoments[] }[],
+  first: DuckDBConnection,
+  connect: () => Promise<DuckDBConnection>,
+  signal: AbortSignal | undefined,
+): Promise<void> {
+  const lanes = Math.max(1, Math.min(partialsLanes, jobs.length))
+  const connections = [first]
+  for (let i = 1; i < lanes; i++) connections.push(await connect())
+  let next = 0
+  let failed = false
+  const results = await Promise.allSettled(
+    connections.map(async (connection) => {
+      for (let i = next++; i < jobs.length && !failed; i = next++) {
+        signal?.throwIfAborted()
+        const job = jobs[i] as (typeof jobs)[number]
+        try {
+          await writePartials(job.target, job.partials, { connection })
+        } catch (err) {
+          failed = true
+          throw err
+        }
+      }
+    }),
+  )
+  for (const r of results) if (r.status === 'rejected') throw r.reason
 }

@@ -23,6 +23,17 @@ describe('openDuckDb', () => {
     }
   })
 
+  it('opens further connections to the same instance, in UTC, closed with the session', async () => {
+    const db = await openDuckDb({ threads: 1 })
+    await db.run('CREATE TABLE shared AS SELECT 42 AS answer')
+    const other = await db.connect()
+    const r = await other.runAndReadAll("SELECT answer, current_setting('TimeZone') FROM shared")
+    expect(r.getRowsJS()).toEqual([[42, 'UTC']])
+    db.close()
+    await expect(other.run('SELECT 1')).rejects.toThrow()
+    await expect(db.connect()).rejects.toThrow('the DuckDB session is closed')
+  })
+
   it('refuses a thread count that is not a positive integer', async () => {
     await expect(openDuckDb({ threads: 0 })).rejects.toThrow('threads must be a positive integer, got 0')
   })
