@@ -36,6 +36,66 @@ function i32(src: Uint8Array, i: number): number {
 /** The end mark and the "stored" bit of a block size word (int32). */
 const storedBit = -0x80000000
 
+/** Largest block size per BD descriptor value 4 … 7 (64 KB, 256 KB, 1 MB, 4 MB). */
+const blockMaxSize: Readonly<Record<number, number>> = { 4: 65536, 5: 262144, 6: 1048576, 7: 4194304 }
+
+/** What a frame descriptor says, and where the frame's first block starts. */
+interface FrameHeader {
+  /** Index of the first block size word. */
+  readonly blocks: number
+  readonly blockChecksum: boolean
+  readonly contentChecksum: boolean
+  /** The stated content size, or null when the frame does not state it. */
+  readonly contentSize: number | null
+  /** Largest block size the descriptor allows. */
+  readonly maxBlock: number
+}
+
+/**
+ * Reads the frame header at `s` (just after a frame magic): FLG, BD, the optional content size and
+ * dictionary id, the header checksum. Shared by the decoder and the bound.
+ */
+function frameHeader(src: Uint8Array, s: number): FrameHeader {
+  if (s + 3 > src.length) throw new Lz4FrameError('LZ4 frame header truncated')
+  const flg = src[s] as number
+  if (flg >> 6 !== 1) throw new Lz4FrameError(`LZ4 frame version ${flg >> 6} is not 1`)
+  const maxBlock = blockMaxSize[((src[s + 1] as number) >> 4) & 7]
+  if (maxBlock === undefined) throw new Lz4FrameError('LZ4 frame descriptor is not valid')
+  let at = s + 2 // FLG, BD
+  let contentSize: number | null = null
+  if ((flg & 0x08) !== 0) {
+    contentSize = (i32(src, at) >>> 0) + (i32(src, at + 4) >>> 0) * 4294967296
+    at += 8
+  }
+  if ((flg & 0x01) !== 0) at += 4 // dictionary id
+  return {
+    blocks: at + 1, // header checksum
+    blockChecksum: (flg & 0x10) !== 0,
+    contentChecksum: (flg & 0x04) !== 0,
+    contentSize,
+    maxBlock,
+  }
+}
+
+/**
+ * Index just after the magic of the next frame to read from `s`, skipping skippable frames; -1 at
+ * the end of `src`.
+ */
+function nextFrame(src: Uint8Array, s: number): number {
+  let at = s
+  while (at < src.length) {
+    const magic = i32(src, at)
+    at += 4
+    if ((magic & skippableMask) === skippableMagic) {
+      at += 4 + (i32(src, at) >>> 0)
+      continue
+    }
+    if (magic !== frameMagic) throw new Lz4FrameError(`not an LZ4 frame (magic 0x${(magic >>> 0).toString(16)})`)
+    return at
+  }
+  return -1
+}
+
 /**
  * Decodes the LZ4 frame(s) in `src` into `dst` from index 0 and returns the number of bytes
  * written. Concatenated frames are decoded one after the other; skippable frames are skipped.
@@ -44,27 +104,10 @@ const storedBit = -0x80000000
  *   frame's start, or output that would not fit in `dst` (the caller's length is then wrong).
  */
 export function decodeLz4FrameInto(src: Uint8Array, dst: Uint8Array): number {
-  let s = 0
   let d = 0
-  while (s < src.length) {
-    const magic = i32(src, s)
-    s += 4
-    if ((magic & skippableMask) === skippableMagic) {
-      s += 4 + (i32(src, s) >>> 0)
-      continue
-    }
-    if (magic !== frameMagic) throw new Lz4FrameError(`not an LZ4 frame (magic 0x${(magic >>> 0).toString(16)})`)
-    if (s + 3 > src.length) throw new Lz4FrameError('LZ4 frame header truncated')
-    const flg = src[s] as number
-    if (flg >> 6 !== 1) throw new Lz4FrameError(`LZ4 frame version ${flg >> 6} is not 1`)
-    const blockChecksum = (flg & 0x10) !== 0
-    const contentSize = (flg & 0x08) !== 0
-    const contentChecksum = (flg & 0x04) !== 0
-    const dictId = (flg & 0x01) !== 0
-    s += 2 // FLG, BD
-    if (contentSize) s += 8
-    if (dictId) s += 4
-    s += 1 // header checksum
+  for (let at = nextFrame(src, 0); at >= 0; ) {
+    const h = frameHeader(src, at)
+    let s = h.blocks
     const frameStart = d
     for (;;) {
       const size = i32(src, s)
@@ -81,16 +124,14 @@ export function decodeLz4FrameInto(src: Uint8Array, dst: Uint8Array): number {
         d = decodeBlock(src, s, s + len, dst, d, frameStart)
       }
       s += len
-      if (blockChecksum) s += 4
+      if (h.blockChecksum) s += 4
     }
-    if (contentChecksum) s += 4
+    if (h.contentChecksum) s += 4
     if (s > src.length) throw new Lz4FrameError('LZ4 frame truncated in its checksum')
+    at = nextFrame(src, s)
   }
   return d
 }
-
-/** Largest block size per BD descriptor value 4 … 7 (64 KB, 256 KB, 1 MB, 4 MB). */
-const blockMaxSize: Readonly<Record<number, number>> = { 4: 65536, 5: 262144, 6: 1048576, 7: 4194304 }
 
 /**
  * An upper bound of the decoded size of the LZ4 frame(s) in `src`, from the headers alone: the
@@ -100,40 +141,23 @@ const blockMaxSize: Readonly<Record<number, number>> = { 4: 65536, 5: 262144, 6:
  * @throws Lz4FrameError on a bad magic or descriptor or a truncated frame.
  */
 export function lz4FrameBound(src: Uint8Array): number {
-  let s = 0
   let total = 0
-  while (s < src.length) {
-    const magic = i32(src, s)
-    s += 4
-    if ((magic & skippableMask) === skippableMagic) {
-      s += 4 + (i32(src, s) >>> 0)
-      continue
-    }
-    if (magic !== frameMagic) throw new Lz4FrameError(`not an LZ4 frame (magic 0x${(magic >>> 0).toString(16)})`)
-    if (s + 3 > src.length) throw new Lz4FrameError('LZ4 frame header truncated')
-    const flg = src[s] as number
-    const maxBlock = blockMaxSize[((src[s + 1] as number) >> 4) & 7]
-    if (flg >> 6 !== 1 || maxBlock === undefined) throw new Lz4FrameError('LZ4 frame descriptor is not valid')
-    const blockChecksum = (flg & 0x10) !== 0
-    s += 2
-    if ((flg & 0x08) !== 0) {
-      // the stated content size; the blocks are then skipped without adding them up
-      total += (i32(src, s) >>> 0) + (i32(src, s + 4) >>> 0) * 4294967296
-      s += 8
-    }
-    const sized = (flg & 0x08) !== 0
-    if ((flg & 0x01) !== 0) s += 4
-    s += 1
+  for (let at = nextFrame(src, 0); at >= 0; ) {
+    const h = frameHeader(src, at)
+    // With a stated content size the blocks are skipped without adding them up.
+    if (h.contentSize !== null) total += h.contentSize
+    let s = h.blocks
     for (;;) {
       const size = i32(src, s)
       s += 4
       if (size === 0) break
       const stored = (size & storedBit) !== 0
       const len = size & 0x7fffffff
-      if (!sized) total += stored ? len : maxBlock
-      s += len + (blockChecksum ? 4 : 0)
+      if (h.contentSize === null) total += stored ? len : h.maxBlock
+      s += len + (h.blockChecksum ? 4 : 0)
     }
-    if ((flg & 0x04) !== 0) s += 4
+    if (h.contentChecksum) s += 4
+    at = nextFrame(src, s)
   }
   return total
 }
