@@ -85,13 +85,14 @@ export async function runJob(config: Config, options: RunOptions, deps: RunDeps)
   try {
     // Spill files a killed run left behind (DuckDB removes its own on a clean close); we hold the lock.
     await rm(spillDir(root), { recursive: true, force: true })
+    await ensureDir(spillDir(root)) // DuckDB creates only the last folder of its spill path
     // One DuckDB session for the run's own state and tables: a session per partials file or table
     // would cost an engine start each (measured: 1,000 new files took minutes instead of seconds).
     // It starts in the background while the committed state is read.
     const opening = openDuckDb({
       threads: config.engine.threads,
       memoryLimit: config.engine.memoryLimit,
-      tempDirectory: spillDir(root),
+      tempDirectory: path.join(spillDir(root), 'session'),
     })
     let committed: Ledger
     try {
@@ -179,7 +180,8 @@ async function runLocked(
   const read = await readPartials(toRead, plan, {
     threads: config.engine.threads,
     memoryLimit: config.engine.memoryLimit,
-    tempDirectory: spillDir(root),
+    // Its own folder: two DuckDB instances would name their spill files alike.
+    tempDirectory: path.join(spillDir(root), 'read'),
     log,
     ...(signal ? { signal } : {}),
     ...(deps.onRows ? { onRows: deps.onRows } : {}),
@@ -450,7 +452,7 @@ function windowSpans(partials: readonly PartialMoments[]): Map<string, WindowSpa
   return out
 }
 
-/** `<root>/_state/spill`: DuckDB's spill folder, on the job's own volume instead of the working folder. */
+/** `<root>/_state/spill`: DuckDB's spill folders (one per instance), on the job's volume, not the working folder. */
 function spillDir(root: string): string {
   return path.join(root, '_state', 'spill')
 }

@@ -1,3 +1,4 @@
+import { existsSync } from 'node:fs'
 import { mkdtemp } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
 import path from 'node:path'
@@ -32,6 +33,21 @@ describe('openDuckDb', () => {
     db.close()
     await expect(other.run('SELECT 1')).rejects.toThrow()
     await expect(db.connect()).rejects.toThrow('the DuckDB session is closed')
+  })
+
+  it('spills a sort larger than the memory limit into the given folder', async () => {
+    const spill = path.join(await mkdtemp(path.join(tmpdir(), 'slopeshift-duckdb-')), 'spill')
+    const db = await openDuckDb({ threads: 1, memoryLimit: '40MB', tempDirectory: spill })
+    try {
+      // 4 M rows of two 8-byte columns sorted: about 64 MB, more than the limit.
+      const r = await db.run(
+        'SELECT count(*) FROM (SELECT i, hash(i) AS h FROM range(4000000) t(i) ORDER BY h LIMIT 1000000 OFFSET 10)',
+      )
+      expect((await r.getRowsJS())[0]?.[0]).toBe(1_000_000n)
+      expect(existsSync(spill)).toBe(true)
+    } finally {
+      db.close()
+    }
   })
 
   it('refuses a thread count that is not a positive integer', async () => {

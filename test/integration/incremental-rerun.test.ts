@@ -3,7 +3,6 @@
  * partition, and leaves fits/ and shifts/ row-for-row and byte-for-byte identical. The built CLI is spawned on a
  * small invented lake (test/helpers/lake.ts).
  */
-import { existsSync } from 'node:fs'
 import { mkdir, mkdtemp, rm, writeFile } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
 import path from 'node:path'
@@ -48,7 +47,7 @@ describe.skipIf(!hasBuiltCli)(`runJob via the CLI (${hasBuiltCli ? 'built' : noC
 
     const second = await runCli(['run', '--config', config, '--json'])
     expect(second.code, describeResult(second)).toBe(0)
-    expect(existsSync(path.join(root, '_state', 'spill'))).toBe(false)
+    expect(await listFiles(path.join(root, '_state', 'spill'))).toEqual([])
     const s = second.summary
     expect(s?.files).toMatchObject({ new: 0, changed: 0, deleted: 0, skipped: 4, read: 0 })
     expect(s?.rows).toEqual({ read: 0, skipped: 0 })
