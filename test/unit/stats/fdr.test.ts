@@ -46,7 +46,7 @@ describe('qValues', () => {
     expect(q[1]).toBeCloseTo(0.025 * (4 / 4) * (5 / 5) * 1, 15)
   })
 
-  it('matches a comparison-sort reference on large arrays (radix path), with ties, 0 and 1', () => {
+  it('matches a comparison-sort reference on large arrays (packed-key sort), with ties, 0 and 1', () => {
     const r = mulberry32(3)
     const p = Array.from({ length: 20_000 }, (_, i) => (i % 7 === 0 ? Math.round(r() * 100) / 100 : r()))
     p[5] = 0
