@@ -2,36 +2,11 @@
  * Body-compression codecs for Arrow IPC: apache-arrow 21 decodes LZ4_FRAME and ZSTD buffers only
  * through codecs registered in its `compressionRegistry`; Node 20 has neither, so we plug in our
  * LZ4 frame decoder (`lz4-frame.ts`) and the pure-JS `fzstd` decoder (io-evaluation.md, Arrow IPC
- * and Gotchas). `lz4js` stays the encoder test fixtures write LZ4 bodies with.
+ * and Gotchas). Test fixtures write LZ4 bodies with `lz4js` (test/helpers/lz4js.ts).
  */
-import { createRequire } from 'node:module'
 import { CompressionType, compressionRegistry } from 'apache-arrow'
 import { decompress as zstdDecompress } from 'fzstd'
 import { decodeLz4FrameInto, lz4FrameBound } from './lz4-frame.js'
-
-interface Lz4js {
-  decompress(src: Uint8Array, maxSize?: number): Uint8Array
-  compress(src: Uint8Array, maxSize?: number): Uint8Array
-}
-
-function isLz4js(m: unknown): m is Lz4js {
-  return (
-    typeof m === 'object' &&
-    m !== null &&
-    typeof (m as { decompress?: unknown }).decompress === 'function' &&
-    typeof (m as { compress?: unknown }).compress === 'function'
-  )
-}
-
-/** lz4js ships CommonJS without types; load it once and check its shape instead of trusting `any`. */
-function loadLz4js(): Lz4js {
-  const m: unknown = createRequire(import.meta.url)('lz4js')
-  if (!isLz4js(m)) throw new TypeError('lz4js does not export compress/decompress')
-  return m
-}
-
-/** The lz4js module (LZ4 frame format), also used by test fixtures to write LZ4 bodies. */
-export const lz4 = loadLz4js()
 
 /**
  * Returns `bytes` when its start is 8-byte aligned, else a copy. fzstd returns views at

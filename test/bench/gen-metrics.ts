@@ -34,7 +34,7 @@ import {
   Utf8,
   vectorFromArray,
 } from 'apache-arrow'
-import { lz4 } from '../../src/dataset/codecs.js'
+import { lz4 } from '../helpers/lz4js.js'
 import { benchDir } from './lib.js'
 
 /** 2026-12-01T00:00Z in epoch ms. */

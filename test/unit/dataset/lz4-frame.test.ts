@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest'
-import { lz4 } from '../../../src/dataset/codecs.js'
 import { decodeLz4FrameInto, Lz4FrameError, lz4FrameBound } from '../../../src/dataset/lz4-frame.js'
+import { lz4 } from '../../helpers/lz4js.js'
 import { mulberry32 } from '../../helpers/prng.js'
 
 // Reference: frames are written and decoded by lz4js (a general-purpose LZ4 library), which our
