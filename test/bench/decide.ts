@@ -8,6 +8,7 @@
 import path from 'node:path'
 import { constants, type PerformanceEntry, PerformanceObserver } from 'node:perf_hooks'
 import { pathToFileURL } from 'node:url'
+import { mulberry32 } from '../helpers/prng.js'
 import { fmt, median, printTable, projectRoot } from './lib.js'
 
 type Accumulate = typeof import('../../src/kernel/accumulate.js')
@@ -49,18 +50,6 @@ export interface DecideResult {
 
 async function importDist<T>(rel: string): Promise<T> {
   return (await import(pathToFileURL(path.join(projectRoot, 'dist', rel)).href)) as T
-}
-
-/** mulberry32: a small seeded 32-bit generator (invented bench data only). */
-function mulberry32(seed: number): () => number {
-  let a = seed >>> 0
-  return () => {
-    a = (a + 0x6d2b79f5) >>> 0
-    let t = a
-    t = Math.imul(t ^ (t >>> 15), t | 1)
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61)
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296
-  }
 }
 
 /**
