@@ -21,10 +21,17 @@ import { msPerXUnit, previousWindowStart, type WindowSpec, windowEndOf, windowSt
 import type { Logger } from '../log.js'
 import { flushOutbox, undeliveredError } from '../notify/flush.js'
 import { stageDigests } from '../notify/stage.js'
-import { entriesTouching, type FilePlan, ledgerAfter, planFiles, type WindowSpan } from '../plan/files.js'
+import {
+  entriesTouching,
+  entriesUnchanged,
+  type FilePlan,
+  ledgerAfter,
+  planFiles,
+  type WindowSpan,
+} from '../plan/files.js'
 import { affectedWindowStarts, windowStartsBetween } from '../plan/windows.js'
 import { fingerprintFiles } from '../store/fingerprint.js'
-import { commitLedger, emptyLedger, type Ledger, readLedger } from '../store/ledger.js'
+import { commitLedger, emptyLedger, gcLedgerEntries, type Ledger, readLedger } from '../store/ledger.js'
 import { acquireRunLock } from '../store/lock.js'
 import {
   gcPartials,
@@ -132,6 +139,7 @@ async function settleState(root: string, log: Logger): Promise<Ledger> {
   const committed = await readLedger(root)
   const recovery = await recoverStaging(root, committed.committedRunId)
   if (recovery.rolledBack.length > 0) log.warn({ runs: recovery.rolledBack }, 'uncommitted publish rolled back')
+  await gcLedgerEntries(root, committed.entriesFile)
   await gcPartials(root, committed)
   return committed
 }
@@ -351,8 +359,11 @@ async function runLocked(
   signal?.throwIfAborted()
   lap('digests staged')
   await publish(staging, root, { remove })
-  const entries = ledgerAfter(filePlan, runId, windowSpans(read.partials))
-  await commitLedger(root, runId, entries, { maxTsMs, watermarkMs })
+  // A rerun that changed no entry commits the committed entries as they are (the ledger reuses their file).
+  const entries = entriesUnchanged(filePlan, committed.files)
+    ? committed.files
+    : ledgerAfter(filePlan, runId, windowSpans(read.partials))
+  await commitLedger(root, runId, entries, { maxTsMs, watermarkMs }, committed)
   lap('published and committed')
   await discardStaging(staging)
   // Partials of replaced and deleted files go now; a run that replaced nothing has nothing to collect.

@@ -225,3 +225,18 @@ function indexLedger(ledger: readonly LedgerEntry[]): Map<string, LedgerEntry> {
   for (const e of ledger) if (!m.has(e.path)) m.set(e.path, e)
   return m
 }
+
+/**
+ * True when committing `plan` would record exactly the entries of `committed` (sorted by path): no
+ * file new, changed or deleted, and every unchanged file with the size, mtime and fingerprint its
+ * entry has. The caller then commits `committed` itself, and the ledger reuses its entries file.
+ */
+export function entriesUnchanged(plan: FilePlan, committed: readonly LedgerEntry[]): boolean {
+  if (plan.new.length > 0 || plan.changed.length > 0 || plan.deleted.length > 0) return false
+  if (plan.unchanged.length !== committed.length) return false
+  for (const f of plan.unchanged) {
+    const e = f.previous
+    if (e === null || e.size !== f.size || e.mtimeMs !== f.mtimeMs || e.fingerprint !== f.fingerprint) return false
+  }
+  return true
+}

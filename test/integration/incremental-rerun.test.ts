@@ -3,7 +3,7 @@
  * partition, and leaves fits/ and shifts/ row-for-row and byte-for-byte identical. The built CLI is spawned on a
  * small invented lake (test/helpers/lake.ts).
  */
-import { mkdir, mkdtemp, rm, writeFile } from 'node:fs/promises'
+import { mkdir, mkdtemp, rm, stat, writeFile } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
 import path from 'node:path'
 import { afterAll, beforeAll, describe, expect, it } from 'vitest'
@@ -34,6 +34,9 @@ describe.skipIf(!hasBuiltCli)(`runJob via the CLI (${hasBuiltCli ? 'built' : noC
     expect(first.summary?.files.read).toBe(4)
     expect(first.summary?.rows.read).toBeGreaterThan(0)
     const ledgerBefore = await readLedger(root)
+    const entriesStat = async (l: typeof ledgerBefore) =>
+      (await stat(path.join(root, '_state', l.entriesFile ?? 'missing'))).mtimeMs
+    const entriesMtimeBefore = await entriesStat(ledgerBefore)
     const partialsBefore = await listFiles(path.join(root, '_state', 'partials'))
     const tablesBefore = await tableFiles(root)
     const outputsBefore = await readOutputs(root)
@@ -67,6 +70,9 @@ describe.skipIf(!hasBuiltCli)(`runJob via the CLI (${hasBuiltCli ? 'built' : noC
     const facts = (l: typeof ledgerBefore) => l.files.map((f) => ({ path: f.path, fingerprint: f.fingerprint }))
     expect(facts(ledgerAfter)).toEqual(facts(ledgerBefore))
     expect(ledgerAfter.committedRunId).toBe(s?.run_id)
+    // Same entries, so the commit rewrote only ledger.json: the entries file is the very same file.
+    expect(ledgerAfter.entriesFile).toBe(ledgerBefore.entriesFile)
+    expect(await entriesStat(ledgerAfter)).toBe(entriesMtimeBefore)
     expect(ledgerAfter.watermarkMs).toBe(ledgerBefore.watermarkMs)
     // Every entry knows the window span of its partials (so later runs open only the files they need),
     // and the rerun kept the spans.

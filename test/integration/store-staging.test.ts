@@ -64,10 +64,10 @@ describe('publish', () => {
       null,
     ])
     expect((await readdir(join(root, 'fits'))).sort()).toEqual(['window_date=2026-01-05', 'window_date=2026-01-06'])
-    await commitLedger(root, 'run-2', [])
+    const ledger = await commitLedger(root, 'run-2', [])
     await discardStaging(staging)
     expect(await readdir(stagingRoot(root))).toEqual([])
-    expect((await readdir(join(root, '_state'))).sort()).toEqual(['ledger.json', 'staging'])
+    expect((await readdir(join(root, '_state'))).sort()).toEqual([ledger.entriesFile, 'ledger.json', 'staging'])
   })
 })
 

@@ -2,6 +2,7 @@ import { describe, expect, it } from 'vitest'
 import type { LedgerEntry, StatFile } from '../../../src/plan/files.js'
 import {
   entriesTouching,
+  entriesUnchanged,
   filesToFingerprint,
   isStatUnchanged,
   ledgerAfter,
@@ -176,5 +177,31 @@ describe('entriesTouching', () => {
     expect(entriesTouching(entries, [30, 12]).map((x) => x.name)).toEqual(['holds', 'unknown', 'old'])
     expect(entriesTouching(entries, [9, 31]).map((x) => x.name)).toEqual(['before', 'after', 'unknown', 'old'])
     expect(entriesTouching(entries, []).map((x) => x.name)).toEqual(['unknown', 'old'])
+  })
+})
+
+describe('entriesUnchanged', () => {
+  const asFound = (e: LedgerEntry): StatFile => ({ path: e.path, size: e.size, mtimeMs: e.mtimeMs })
+
+  it('is true when every ledger file is found as it was, and then ledgerAfter gives the same entries', () => {
+    const plan = planFiles(ledger.map(asFound), ledger)
+    expect(entriesUnchanged(plan, ledger)).toBe(true)
+    expect(ledgerAfter(plan, 'run-2')).toEqual(ledger)
+  })
+
+  it('is false when a file is new, deleted, rewritten or only touched', () => {
+    const found = ledger.map(asFound)
+    const added = [...found, { path: '/lake/site=south/z.arrow', size: 1, mtimeMs: 1 }]
+    expect(entriesUnchanged(planFiles(added, ledger, new Map([['/lake/site=south/z.arrow', 'fz']])), ledger)).toBe(
+      false,
+    )
+    expect(entriesUnchanged(planFiles(found.slice(1), ledger), ledger)).toBe(false)
+    const rewritten = found.map((f, i) => (i === 0 ? { ...f, size: f.size + 1 } : f))
+    expect(entriesUnchanged(planFiles(rewritten, ledger, new Map([[found[0]?.path ?? '', 'new']])), ledger)).toBe(false)
+    // A touch keeps the content (same fingerprint) but the ledger must record the new mtime.
+    const touched = found.map((f, i) => (i === 0 ? { ...f, mtimeMs: f.mtimeMs + 1 } : f))
+    const touchPlan = planFiles(touched, ledger, new Map([[found[0]?.path ?? '', 'fa']]))
+    expect(touchPlan.unchanged.length).toBe(ledger.length)
+    expect(entriesUnchanged(touchPlan, ledger)).toBe(false)
   })
 })
