@@ -13,6 +13,7 @@ import { Worker } from 'node:worker_threads'
 import { DataError, type ErrorContext, NoInputError } from '../errors.js'
 import { type DiscoverOptions, type Discovery, discoverFiles } from './discover.js'
 import type { DiscoverReply, DiscoverRequest } from './discover-worker.js'
+import { decodeDiscovery } from './discovery-wire.js'
 
 /**
  * Where the built worker script is: beside this module in `dist/dataset/`, or one folder up when this
@@ -42,7 +43,7 @@ export function discoverInWorker(inputs: readonly string[], options: DiscoverOpt
     }
     worker.once('message', (reply: DiscoverReply) => {
       settled = true
-      if (reply.ok) resolve(reply.discovery)
+      if (reply.ok) resolve(decodeDiscovery(reply.discovery))
       else reject(rebuild(reply))
     })
     worker.once('error', () => {

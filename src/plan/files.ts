@@ -150,17 +150,23 @@ export function planFiles(
     if (seen.has(f.path)) continue
     seen.add(f.path)
     const entry = byPath.get(f.path) ?? null
-    const fp = fingerprints.get(f.path) ?? null
-    const base = { path: f.path, size: f.size, mtimeMs: f.mtimeMs }
+    const fp = fingerprints.size === 0 ? null : (fingerprints.get(f.path) ?? null)
+    // Literals, not spreads: this runs once per file of the lake on every run.
     if (entry === null) {
-      added.push({ ...base, fingerprint: fp, previous: null })
+      added.push({ path: f.path, size: f.size, mtimeMs: f.mtimeMs, fingerprint: fp, previous: null })
     } else if (fp !== null) {
       const target = fp === entry.fingerprint ? unchanged : changed
-      target.push({ ...base, fingerprint: fp, previous: entry })
+      target.push({ path: f.path, size: f.size, mtimeMs: f.mtimeMs, fingerprint: fp, previous: entry })
     } else if (isStatUnchanged(f, entry)) {
-      unchanged.push({ ...base, fingerprint: entry.fingerprint, previous: entry })
+      unchanged.push({
+        path: f.path,
+        size: f.size,
+        mtimeMs: f.mtimeMs,
+        fingerprint: entry.fingerprint,
+        previous: entry,
+      })
     } else {
-      changed.push({ ...base, fingerprint: null, previous: entry })
+      changed.push({ path: f.path, size: f.size, mtimeMs: f.mtimeMs, fingerprint: null, previous: entry })
     }
   }
   const deleted = [...byPath.values()].filter((e) => !seen.has(e.path))
