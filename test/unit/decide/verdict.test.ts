@@ -113,6 +113,32 @@ describe('decideWindowFamily', () => {
     expect(on.reason).toMatch(/≥ minRelChange 10% and \|Δ\| [\d.]+ ≥ minAbsChange 0\.01$/)
   })
 
+  it('gives series with tied q-values the same reason text, and each thin new window its own count', () => {
+    // Identical series get identical p, hence tied BH q-values; the reason of a tie is built once and reused.
+    const same = () => ({ current: win(60, 0.1, { seed: 4 }), baseline: [win(60, 0.1, { seed: 5 })] })
+    const r = decideWindowFamily(
+      [
+        same(),
+        { current: win(12, 0.1), baseline: [win(40, 0.1)] },
+        same(),
+        { current: win(15, 0.1), baseline: [win(40, 0.1)] },
+        { current: win(60, 0.1, { seed: 6 }), baseline: [win(60, 0.1, { seed: 7 })] },
+        same(),
+      ],
+      detect({ serial: 'off' }),
+    )
+    expect(r.q[0]).toBe(r.q[5])
+    expect(r.at(0).reason).toMatch(/^steady: q [\d.e-]+ > fdrQ 0\.05$/)
+    expect(r.at(2).reason).toBe(r.at(0).reason)
+    expect(r.at(5).reason).toBe(r.at(0).reason)
+    expect(r.q[4]).not.toBe(r.q[0])
+    expect(r.at(4).reason).not.toBe(r.at(0).reason)
+    expect(r.at(1).reason).toBe('thin: new window has 12 points < minPoints 20')
+    expect(r.at(3).reason).toBe('thin: new window has 15 points < minPoints 20')
+    // Asked again (cached), the texts do not change.
+    expect(r.toArray().map((d) => d.reason)).toEqual([0, 1, 2, 3, 4, 5].map((i) => r.reason(i)))
+  })
+
   it('calls strongly autocorrelated short windows thin by n_eff', () => {
     const [d] = decideWindowFamily(
       [{ current: win(25, 0.1, { rho: 0.95, seed: 8 }), baseline: [win(25, 0.1, { rho: 0.95, seed: 9 })] }],
