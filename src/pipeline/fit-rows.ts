@@ -5,8 +5,15 @@
 import type { Config } from '../config/schema.js'
 import type { MergedState } from '../kernel/merge-partials.js'
 import { msPerXUnit, type WindowSpec, windowEndOf } from '../kernel/window.js'
-import { fitLine, type LineFit, type WeightKind } from '../stats/fit.js'
-import { projectOneSpan, timeToLevel } from '../stats/projection.js'
+import {
+  fillPrediction,
+  fitLine,
+  type LineFit,
+  newPredictionScratch,
+  type PredictOptions,
+  type WeightKind,
+} from '../stats/fit.js'
+import { timeToLevel } from '../stats/projection.js'
 import { serialStats } from '../stats/serial.js'
 import type { FitRow } from '../types.js'
 
@@ -24,25 +31,69 @@ export function weightKindOf(config: Config): WeightKind {
   return config.source.weight === undefined ? 'none' : config.source.weight.kind
 }
 
-/** One `fits/` row per merged state with at least one accepted row. */
+/**
+ * One `fits/` row per merged state with at least one accepted row. Each row is built as one object literal: the
+ * projection columns are computed into locals (no per-row options, prediction or column objects), since a run builds
+ * ~24,000 rows and every short-lived object adds to the minor GCs that dominate this stage.
+ */
 export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow[] {
-  const weights = weightKindOf(ctx.config)
-  const mode = ctx.config.detect.serial === 'ar1_mild' ? 'ar1_mild' : 'ar1'
+  const { config } = ctx
+  const weights = weightKindOf(config)
+  const mode = config.detect.serial === 'ar1_mild' ? 'ar1_mild' : 'ar1'
+  const unitMs = msPerXUnit[config.window.xUnit]
+  const p = config.projection
+  const xUnit = config.window.xUnit
+  // projectOneSpan's rule: nothing when one span is beyond maxSpans (statistics.md §6.1).
+  const projectSpan = !(1 > p.maxSpans)
+  // Prediction options, refilled per window: plain, or with the window's serial-adjusted n_eff (§5.4).
+  const plain: PredictOptions = { level: p.confidence }
+  const adjusted = { level: p.confidence, nEff: Number.NaN }
+  const pred = newPredictionScratch()
   const rows: FitRow[] = []
   for (const s of states) {
     const m = s.moments
     if (m.n === 0) continue
-    const end = windowEndOf(ctx.window, s.windowStartMs)
+    const start = s.windowStartMs
+    const end = windowEndOf(ctx.window, start)
     const fit = fitLine(m, { weights, pValue: false })
     const line = fit.kind === 'fit' ? fit : null
     const serial = line !== null && weights === 'none' ? serialStats(m, line.slope, line.rss, mode) : null
-    const proj = line === null ? noProjection : projectionColumns(line, s.windowStartMs, end, serial?.nEff, ctx.config)
+    // The line one span past the window end with its CI and PI, and (when `projection.limit` is set) when the line
+    // reaches the limit with its Fieller interval (statistics.md §2.3, §6). Times are epoch ms.
+    let projAt: number | null = null
+    let projValue: number | null = null
+    let ciLow: number | null = null
+    let ciHigh: number | null = null
+    let piLow: number | null = null
+    let piHigh: number | null = null
+    let limit: LimitColumns = noLimit
+    if (line !== null) {
+      const spanL = (end - start) / unitMs
+      if (projectSpan) {
+        let opts = plain
+        if (serial !== null) {
+          adjusted.nEff = serial.nEff
+          opts = adjusted
+        }
+        const x0 = 2 * spanL
+        const intervals = fillPrediction(line, x0, opts, pred)
+        projAt = start + x0 * unitMs
+        projValue = pred.yhat
+        if (intervals) {
+          ciLow = pred.ciLow
+          ciHigh = pred.ciHigh
+          piLow = pred.piLow
+          piHigh = pred.piHigh
+        }
+      }
+      if (p.limit !== undefined) limit = limitColumns(line, p.limit, start, spanL, unitMs, serial?.nEff, config)
+    }
     rows.push({
       key: s.key,
-      window_start: s.windowStartMs,
+      window_start: start,
       window_end: end,
       window_state: end <= ctx.watermarkMs ? 'closed' : 'open',
-      x_unit: ctx.config.window.xUnit,
+      x_unit: xUnit,
       n: m.n,
       w_sum: m.wSum,
       x_mean: m.xMean,
@@ -62,7 +113,17 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
       r1: serial?.r1 ?? null,
       durbin_watson: serial?.durbinWatson ?? null,
       points_skipped: m.skipped,
-      ...proj,
+      proj_at: projAt,
+      proj_value: projValue,
+      proj_ci_low: ciLow,
+      proj_ci_high: ciHigh,
+      proj_pi_low: piLow,
+      proj_pi_high: piHigh,
+      limit_value: limit.value,
+      limit_at: limit.at,
+      limit_at_low: limit.atLow,
+      limit_at_high: limit.atHigh,
+      limit_note: limit.note,
       run_id: ctx.runId,
       computed_at: ctx.computedAtMs,
     })
@@ -70,49 +131,30 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
   return rows
 }
 
-type ProjectionColumns = Pick<
-  FitRow,
-  | 'proj_at'
-  | 'proj_value'
-  | 'proj_ci_low'
-  | 'proj_ci_high'
-  | 'proj_pi_low'
-  | 'proj_pi_high'
-  | 'limit_value'
-  | 'limit_at'
-  | 'limit_at_low'
-  | 'limit_at_high'
-  | 'limit_note'
->
-
-const noProjection: ProjectionColumns = {
-  proj_at: null,
-  proj_value: null,
-  proj_ci_low: null,
-  proj_ci_high: null,
-  proj_pi_low: null,
-  proj_pi_high: null,
-  limit_value: null,
-  limit_at: null,
-  limit_at_low: null,
-  limit_at_high: null,
-  limit_note: null,
+/** The `limit_*` columns of one row. */
+interface LimitColumns {
+  readonly value: number | null
+  readonly at: number | null
+  readonly atLow: number | null
+  readonly atHigh: number | null
+  readonly note: string | null
 }
 
+const noLimit: LimitColumns = { value: null, at: null, atLow: null, atHigh: null, note: null }
+
 /**
- * The line one span past the window end with its CI and PI, and (when `projection.limit` is set)
- * when the line reaches the limit with its Fieller interval (statistics.md §2.3, §6). Uses the
- * serial-adjusted variance when n_eff is known. Times are epoch ms.
+ * When the line reaches `projection.limit`, with its Fieller interval (statistics.md §6.2), as epoch ms; or why not
+ * (`limit_note`). Uses the serial-adjusted variance when n_eff is known.
  */
-function projectionColumns(
+function limitColumns(
   line: LineFit,
+  level: number,
   startMs: number,
-  endMs: number,
+  spanL: number,
+  unitMs: number,
   nEff: number | undefined,
   config: Config,
-): ProjectionColumns {
-  const unitMs = msPerXUnit[config.window.xUnit]
-  const spanL = (endMs - startMs) / unitMs
+): LimitColumns {
   const p = config.projection
   const opts = {
     level: p.confidence,
@@ -120,25 +162,13 @@ function projectionColumns(
     maxSpans: p.maxSpans,
     ...(nEff === undefined ? {} : { nEff }),
   }
-  const one = projectOneSpan(line, spanL, opts)
-  const out: { -readonly [K in keyof ProjectionColumns]: ProjectionColumns[K] } = { ...noProjection }
-  if (one !== null) {
-    out.proj_at = startMs + one.x0 * unitMs
-    out.proj_value = one.yhat
-    out.proj_ci_low = one.ci?.[0] ?? null
-    out.proj_ci_high = one.ci?.[1] ?? null
-    out.proj_pi_low = one.pi?.[0] ?? null
-    out.proj_pi_high = one.pi?.[1] ?? null
+  const c = timeToLevel(line, level, spanL, opts)
+  if (c.kind !== 'crossing') return { value: level, at: null, atLow: null, atHigh: null, note: c.reason }
+  return {
+    value: level,
+    at: startMs + c.x * unitMs,
+    atLow: startMs + c.line[0] * unitMs,
+    atHigh: startMs + c.line[1] * unitMs,
+    note: c.extrapolated ? 'extrapolated' : null,
   }
-  if (p.limit !== undefined) {
-    out.limit_value = p.limit
-    const c = timeToLevel(line, p.limit, spanL, opts)
-    if (c.kind === 'crossing') {
-      out.limit_at = startMs + c.x * unitMs
-      out.limit_at_low = startMs + c.line[0] * unitMs
-      out.limit_at_high = startMs + c.line[1] * unitMs
-      out.limit_note = c.extrapolated ? 'extrapolated' : null
-    } else out.limit_note = c.reason
-  }
-  return out
 }

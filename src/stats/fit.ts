@@ -184,26 +184,89 @@ export function intervalVariance(fit: LineFit, nEff?: number): { readonly s2: nu
 }
 
 /**
+ * Allocation-free form of a {@link Prediction} for bulk callers (one instance refilled per window): the same numbers,
+ * with the intervals as four bounds. NaN stands for null.
+ */
+export interface PredictionScratch {
+  yhat: number
+  seMean: number
+  seObs: number
+  df: number
+  ciLow: number
+  ciHigh: number
+  piLow: number
+  piHigh: number
+}
+
+/** A fresh {@link PredictionScratch} (all NaN). */
+export function newPredictionScratch(): PredictionScratch {
+  const nan = Number.NaN
+  return { yhat: nan, seMean: nan, seObs: nan, df: nan, ciLow: nan, ciHigh: nan, piLow: nan, piHigh: nan }
+}
+
+/**
+ * {@link predictAt} into `out`, allocating nothing: the same formulas in the same order, so the numbers are the same
+ * bits. Returns false when there is no residual df (`yhat` is then set and every other field NaN).
+ */
+export function fillPrediction(fit: LineFit, x0: number, opts: PredictOptions, out: PredictionScratch): boolean {
+  const h = x0 - fit.xMean
+  const yhat = fit.yMean + fit.slope * h
+  out.yhat = yhat
+  // intervalVariance, written out: plain s² and df, or the serial-adjusted ones (§2.3, §5.4).
+  let s2: number
+  let df: number
+  let ok: boolean
+  if (opts.nEff !== undefined) {
+    df = opts.nEff - 2
+    s2 = fit.rss / df
+    ok = df > 0
+  } else {
+    df = fit.df
+    s2 = fit.s2 ?? Number.NaN
+    ok = fit.s2 !== null
+  }
+  if (!ok) {
+    const nan = Number.NaN
+    out.seMean = nan
+    out.seObs = nan
+    out.df = nan
+    out.ciLow = nan
+    out.ciHigh = nan
+    out.piLow = nan
+    out.piHigh = nan
+    return false
+  }
+  const lever = 1 / fit.wSum + (h * h) / fit.sxx
+  const seMean = Math.sqrt(s2 * lever)
+  const seObs = Math.sqrt(s2 * (1 / (opts.w0 ?? 1) + lever))
+  const q = tQuantile(1 - (1 - (opts.level ?? 0.95)) / 2, df)
+  out.seMean = seMean
+  out.seObs = seObs
+  out.df = df
+  out.ciLow = yhat - q * seMean
+  out.ciHigh = yhat + q * seMean
+  out.piLow = yhat - q * seObs
+  out.piHigh = yhat + q * seObs
+  return true
+}
+
+/**
  * The line at `x0` (same origin as the window) with CI and PI (statistics.md §2.3):
  * `yhat = ȳ + slope·(x0 − x̄)` (better conditioned than b0 + b1·x0),
  * `se_mean = √(s²(1/w_sum + h²/sxx))`, `se_obs = √(s²(1/w0 + 1/w_sum + h²/sxx))`.
  */
 export function predictAt(fit: LineFit, x0: number, opts: PredictOptions = {}): Prediction {
-  const h = x0 - fit.xMean
-  const yhat = fit.yMean + fit.slope * h
-  const v = intervalVariance(fit, opts.nEff)
-  if (v === null) return { x0, yhat, seMean: null, seObs: null, df: null, ci: null, pi: null }
-  const lever = 1 / fit.wSum + (h * h) / fit.sxx
-  const seMean = Math.sqrt(v.s2 * lever)
-  const seObs = Math.sqrt(v.s2 * (1 / (opts.w0 ?? 1) + lever))
-  const q = tQuantile(1 - (1 - (opts.level ?? 0.95)) / 2, v.df)
+  const p = newPredictionScratch()
+  if (!fillPrediction(fit, x0, opts, p)) {
+    return { x0, yhat: p.yhat, seMean: null, seObs: null, df: null, ci: null, pi: null }
+  }
   return {
     x0,
-    yhat,
-    seMean,
-    seObs,
-    df: v.df,
-    ci: [yhat - q * seMean, yhat + q * seMean],
-    pi: [yhat - q * seObs, yhat + q * seObs],
+    yhat: p.yhat,
+    seMean: p.seMean,
+    seObs: p.seObs,
+    df: p.df,
+    ci: [p.ciLow, p.ciHigh],
+    pi: [p.piLow, p.piHigh],
   }
 }

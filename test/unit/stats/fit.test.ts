@@ -1,6 +1,14 @@
 import { describe, expect, it } from 'vitest'
 import { addRow, emptyMoments, type Moments, shiftOrigin } from '../../../src/kernel/moments.js'
-import { fitLine, type LineFit, predictAt, residualDf, slopeInterval } from '../../../src/stats/fit.js'
+import {
+  fillPrediction,
+  fitLine,
+  type LineFit,
+  newPredictionScratch,
+  predictAt,
+  residualDf,
+  slopeInterval,
+} from '../../../src/stats/fit.js'
 
 function moments(x: readonly number[], y: readonly number[], w?: readonly number[]): Moments {
   const m = emptyMoments()
@@ -142,5 +150,31 @@ describe('predictAt', () => {
     const p = predictAt(asFit(moments([1, 3], [2, 6])), 5)
     expect(p.yhat).toBe(10)
     expect([p.seMean, p.seObs, p.ci, p.pi, p.df]).toEqual([null, null, null, null, null])
+  })
+})
+
+describe('fillPrediction', () => {
+  it('fills the numbers of predictAt into a reused scratch, plain and serial-adjusted', () => {
+    const f = asFit(moments(X, Y))
+    const out = newPredictionScratch()
+    for (const opts of [{}, { nEff: 5 }, { level: 0.9, w0: 2 }]) {
+      expect(fillPrediction(f, 15, opts, out)).toBe(true)
+      const p = predictAt(f, 15, opts)
+      expect([out.yhat, out.seMean, out.seObs, out.df]).toEqual([p.yhat, p.seMean, p.seObs, p.df])
+      expect([out.ciLow, out.ciHigh, out.piLow, out.piHigh]).toEqual([...(p.ci ?? []), ...(p.pi ?? [])])
+    }
+  })
+
+  it("returns false and clears the previous window's intervals when there is no residual df", () => {
+    const out = newPredictionScratch()
+    fillPrediction(asFit(moments(X, Y)), 15, {}, out)
+    expect(fillPrediction(asFit(moments([1, 3], [2, 6])), 5, {}, out)).toBe(false)
+    expect(out.yhat).toBe(10)
+    expect([out.seMean, out.seObs, out.df, out.ciLow, out.ciHigh, out.piLow, out.piHigh]).toEqual(
+      Array(7).fill(Number.NaN),
+    )
+    // n_eff ≤ 2 leaves no df either.
+    expect(fillPrediction(asFit(moments(X, Y)), 15, { nEff: 2 }, out)).toBe(false)
+    expect(out.ciLow).toBeNaN()
   })
 })
