@@ -128,7 +128,7 @@ describe('commitLedger', () => {
 describe('commitLedger entries file', () => {
   const spanned = (i: number) => ({
     ...entry(`/lake/${i}.parquet`, 'a', `run-${i % 3}`),
-    windows: [i * 10, i * 10 + 5],
+    windows: [i * 10, i * 10 + 5] as [number, number],
   })
   const stateFiles = async () => (await readdir(join(root, '_state'))).sort()
 
