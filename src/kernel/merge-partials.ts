@@ -30,29 +30,44 @@ export function comparePartials(a: PartialMoments, b: PartialMoments): number {
  * Empty partials (n = 0, only skipped rows) still count their skipped rows.
  */
 export function mergePartials(partials: Iterable<PartialMoments>): MergedState[] {
-  // Series id → window start → partials. Nested maps: one key join per partial, no composite strings.
-  const groups = new Map<string, Map<number, PartialMoments[]>>()
+  // Series id → window start → the window's partials: the partial itself while it is the only one (every window of
+  // a first run), a list from the second on. Nested maps: one key join per partial, no composite strings.
+  const groups = new Map<string, Map<number, PartialMoments | PartialMoments[]>>()
+  // Partials of one series mostly share their key array (the readers build one per series): its id is made once.
+  let lastKey: SeriesKey | null = null
+  let windows: Map<number, PartialMoments | PartialMoments[]> | undefined
   for (const p of partials) {
-    const id = seriesId(p.key)
-    let windows = groups.get(id)
-    if (windows === undefined) {
-      windows = new Map()
-      groups.set(id, windows)
+    if (p.key !== lastKey) {
+      lastKey = p.key
+      const id = seriesId(p.key)
+      windows = groups.get(id)
+      if (windows === undefined) {
+        windows = new Map()
+        groups.set(id, windows)
+      }
     }
-    const list = windows.get(p.windowStartMs)
-    if (list === undefined) windows.set(p.windowStartMs, [p])
-    else list.push(p)
+    const w = windows as Map<number, PartialMoments | PartialMoments[]>
+    const held = w.get(p.windowStartMs)
+    if (held === undefined) w.set(p.windowStartMs, p)
+    else if (Array.isArray(held)) held.push(p)
+    else w.set(p.windowStartMs, [held, p])
   }
   const out: MergedState[] = []
   for (const id of [...groups.keys()].sort(compareIds)) {
-    const windows = groups.get(id) as Map<number, PartialMoments[]>
-    for (const start of [...windows.keys()].sort((a, b) => a - b)) {
-      const list = windows.get(start) as PartialMoments[]
-      if (list.length > 1) list.sort(comparePartials)
+    const byStart = groups.get(id) as Map<number, PartialMoments | PartialMoments[]>
+    for (const start of [...byStart.keys()].sort((a, b) => a - b)) {
+      const held = byStart.get(start) as PartialMoments | PartialMoments[]
+      if (!Array.isArray(held)) {
+        // One partial with rows: its moments are the merge, as they are.
+        const m =
+          held.moments.n > 0 ? held.moments : mergeMoments(emptyMoments(held.moments.lag !== null), held.moments)
+        out.push({ id, key: held.key, windowStartMs: start, moments: m, parts: 1 })
+        continue
+      }
+      const list = held.sort(comparePartials)
       const first = list[0] as PartialMoments
-      // One partial with rows (every window of a first run): its moments are the merge, as they are.
-      let m = list.length === 1 && first.moments.n > 0 ? first.moments : emptyMoments(first.moments.lag !== null)
-      if (m !== first.moments) for (const p of list) m = mergeMoments(m, p.moments)
+      let m = emptyMoments(first.moments.lag !== null)
+      for (const p of list) m = mergeMoments(m, p.moments)
       out.push({ id, key: first.key, windowStartMs: start, moments: m, parts: list.length })
     }
   }

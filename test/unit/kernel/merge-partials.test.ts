@@ -76,4 +76,29 @@ describe('mergePartials', () => {
       ['south', 2],
     ])
   })
+
+  it('groups partials by key value whether or not they share one key array, in any interleaving', () => {
+    // Invented rows: one shared key array for most partials of "north", a fresh equal array for the last one.
+    const north = ['north', 'compressor-1'] as const
+    const m = (y: number) =>
+      moments([
+        [0, y],
+        [1, y + 1],
+      ])
+    const out = mergePartials([
+      { file: '/a', key: north, windowStartMs: 0, moments: m(1) },
+      { file: '/a', key: ['south', 'compressor-1'], windowStartMs: 0, moments: m(2) },
+      { file: '/b', key: north, windowStartMs: 0, moments: m(3) },
+      { file: '/a', key: north, windowStartMs: H, moments: m(4) },
+      { file: '/c', key: ['north', 'compressor-1'], windowStartMs: 0, moments: m(5) },
+    ])
+    expect(out.map((s) => [s.key[0], s.windowStartMs / H, s.parts])).toEqual([
+      ['north', 0, 3],
+      ['north', 1, 1],
+      ['south', 0, 1],
+    ])
+    let want = emptyMoments(true)
+    for (const y of [1, 3, 5]) want = mergeMoments(want, m(y))
+    expect(out[0]?.moments).toEqual(want)
+  })
 })
