@@ -49,13 +49,14 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
   const plain: PredictOptions = { level: p.confidence }
   const adjusted = { level: p.confidence, nEff: Number.NaN }
   const pred = newPredictionScratch()
+  const fitOptions = { weights, pValue: false }
   const rows: FitRow[] = []
   for (const s of states) {
     const m = s.moments
     if (m.n === 0) continue
     const start = s.windowStartMs
     const end = windowEndOf(ctx.window, start)
-    const fit = fitLine(m, { weights, pValue: false })
+    const fit = fitLine(m, fitOptions)
     const line = fit.kind === 'fit' ? fit : null
     const serial = line !== null && weights === 'none' ? serialStats(m, line.slope, line.rss, mode) : null
     // The line one span past the window end with its CI and PI, and (when `projection.limit` is set) when the line
