@@ -1,7 +1,10 @@
 /**
- * Bundles the compiled CLI (`dist/cli/main.js`, `dist/dataset/discover-worker.js`) into `dist/bundle/`
- * with esbuild: ESM, code splitting (commands load their engines on demand from `chunks/`), only the
- * native DuckDB binding left outside. Run by `npm run build:bundle` after `tsc`.
+ * Bundles the compiled CLI into `dist/bundle/` with esbuild (run by `npm run build:bundle` after `tsc`):
+ * - `cli.cjs`: `dist/cli/main.js` and everything it loads as one CommonJS script (commands still
+ *   evaluate their engines only on demand), only the native DuckDB binding left outside;
+ * - `slopeshift.js`: the entry (`dist/cli/launch.js`), which runs `cli.cjs` with a V8 code cache and
+ *   knows it by its content hash (`__SLOPESHIFT_BUNDLE_ID__`), see src/cli/code-cache.ts;
+ * - `discover-worker.js`: the file-discovery worker thread (ESM).
  *
  * Start-up is part of every run's wall time, so the bundle is cut for it:
  * - whitespace and comments are dropped: less text to read, decode and parse on every start, and the
@@ -10,9 +13,12 @@
  * - zod's error messages in 40+ languages (`z.locales`, ~350 kB parsed by every command that reads a
  *   config) are replaced by the English one, the only one the tool uses (zod sets it as its default).
  *
- * Deterministic: same inputs, same files (esbuild's output and chunk hashes depend only on them).
+ * Deterministic: same inputs, same files. The code cache is not a build output: V8's cache bytes differ
+ * from one process to the next, so the CLI writes it beside the bundle on first use (`dist/bundle/cache/`,
+ * emptied by every build with the rest of `dist/bundle`).
  */
-import { rmSync } from 'node:fs'
+import { createHash } from 'node:crypto'
+import { chmodSync, readFileSync, rmSync, writeFileSync } from 'node:fs'
 import path from 'node:path'
 import { build } from 'esbuild'
 
@@ -35,24 +41,47 @@ const englishOnlyZod = {
 }
 
 rmSync(outdir, { recursive: true, force: true })
-await build({
-  entryPoints: { slopeshift: 'dist/cli/main.js', 'discover-worker': 'dist/dataset/discover-worker.js' },
+
+/** Options shared by the builds. */
+const common = {
   bundle: true,
   platform: 'node',
-  format: 'esm',
   target: 'node20',
-  splitting: true,
-  outdir,
-  entryNames: '[name]',
-  chunkNames: 'chunks/[name]-[hash]',
-  external: ['@duckdb/node-bindings'],
   sourcemap: true,
   minifyWhitespace: true,
   lineLimit: 1000,
   legalComments: 'none',
   logLevel: 'warning',
-  banner: {
-    js: "import { createRequire as __ssRequire } from 'node:module'; const require = __ssRequire(import.meta.url);",
-  },
+}
+
+const cli = path.join(outdir, 'cli.cjs')
+await build({
+  ...common,
+  entryPoints: ['dist/cli/main.js'],
+  format: 'cjs',
+  outfile: cli,
+  external: ['@duckdb/node-bindings'],
+  // launch.ts passes the bundle's own file URL as a parameter of the function the script becomes.
+  define: { 'import.meta.url': '__ssImportMetaUrl' },
   plugins: [englishOnlyZod],
 })
+let text = readFileSync(cli, 'latin1')
+// The script becomes a function body: its `#!` line turns into a comment (same line numbers).
+if (text.startsWith('#!')) text = `//${text.slice(2)}`
+const nonAscii = /[\u0080-\u00ff]/.exec(text) // read as latin1: every byte is one character
+if (nonAscii !== null) {
+  throw new Error(
+    `${cli} holds a non-ASCII character at offset ${nonAscii.index}; launch.ts reads it as latin1: keep esbuild's ASCII output`,
+  )
+}
+writeFileSync(cli, text, 'latin1')
+const bundleId = createHash('sha256').update(text).digest('hex').slice(0, 16)
+
+await build({
+  ...common,
+  entryPoints: { slopeshift: 'dist/cli/launch.js', 'discover-worker': 'dist/dataset/discover-worker.js' },
+  format: 'esm',
+  outdir,
+  define: { __SLOPESHIFT_BUNDLE_ID__: JSON.stringify(bundleId) },
+})
+chmodSync(path.join(outdir, 'slopeshift.js'), 0o755)

@@ -1,7 +1,8 @@
 #!/usr/bin/env node
 /**
  * The slopeshift binary. Parses argv, builds the deps (logger, signal, clock), runs one command
- * and maps errors to BSD sysexits codes (style.md 4.3). The only file that sets the exit code.
+ * and maps errors to BSD sysexits codes (style.md 4.3). The only file that sets the exit code. The shipped
+ * entry `dist/bundle/slopeshift.js` (launch.ts) runs this module from the bundle `dist/bundle/cli.cjs`.
  */
 import { ExitCode, exitCodeOf, SlopeshiftError, StoppedError } from '../errors.js'
 import { createLogger } from '../log.js'
@@ -48,8 +49,8 @@ async function main(argv: readonly string[]): Promise<void> {
   }
 }
 
-await main(process.argv.slice(2))
 // Exit as soon as the command is done and stdout has drained: waiting for the event loop to empty
 // only adds engine teardown (freeing the embedded database's buffers, joining its threads) to every
-// run's wall time. Every file and table was closed by the command itself.
-process.stdout.write('', () => process.exit())
+// run's wall time. Every file and table was closed by the command itself. (A promise chain, not a
+// top-level await: the shipped bundle is a CommonJS script, see launch.ts.)
+void main(process.argv.slice(2)).then(() => process.stdout.write('', () => process.exit()))
