@@ -96,6 +96,22 @@ describe('compileGatherer', () => {
     expect([...(state?.data ?? [])]).toEqual([0, 1, 0, 0])
   })
 
+  it('gives a nullable column without a null no null mask, and one with a late first null its mask', () => {
+    const gather = compileGatherer(
+      [
+        { name: 'slope', type: 'DOUBLE', nullable: true, source: 'field' },
+        { name: 'note', type: 'VARCHAR', nullable: true, source: 'field' },
+      ],
+      null,
+    )
+    const rows = Array.from({ length: 3000 }, (_, i) => ({ slope: i / 7, note: i === 2999 ? null : `n${i % 5}` }))
+    const [slope, note] = gather(rows) ?? []
+    expect(slope?.nulls).toBeNull()
+    expect(note?.dictionary).toEqual(['n0', 'n1', 'n2', 'n3', 'n4'])
+    expect(note?.nulls?.indexOf(1)).toBe(2999)
+    expect(note?.nulls?.reduce((a, b) => a + b, 0)).toBe(1)
+  })
+
   it('returns null for a row that is not an object, a key of another length, or a string outside the closed set', () => {
     const gather = compileGatherer(
       [
