@@ -61,8 +61,9 @@ await build({
   format: 'cjs',
   outfile: cli,
   external: ['@duckdb/node-bindings'],
-  // launch.ts passes the bundle's own file URL as a parameter of the function the script becomes.
-  define: { 'import.meta.url': '__ssImportMetaUrl' },
+  // A CommonJS script has no `import.meta`: its URL is derived from `__filename` instead.
+  inject: ['scripts/import-meta-url.mjs'],
+  define: { 'import.meta.url': 'importMetaUrl' },
   plugins: [englishOnlyZod],
 })
 let text = readFileSync(cli, 'latin1')
