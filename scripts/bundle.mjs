@@ -11,7 +11,8 @@
  *   output is pure ASCII (comments were the only non-ASCII text), which Node decodes on its fast path;
  *   lines stay at most 1,000 characters so stack traces remain readable, and the source maps map back;
  * - zod's error messages in 40+ languages (`z.locales`, ~350 kB parsed by every command that reads a
- *   config) are replaced by the English one, the only one the tool uses (zod sets it as its default).
+ *   config) are replaced by the English one, the only one the tool uses (zod sets it as its default);
+ * - yargs' help-text layout libraries load when help is first rendered, not at every start.
  *
  * Deterministic: same inputs, same files. The code cache is not a build output: V8's cache bytes differ
  * from one process to the next, so the CLI writes it beside the bundle on first use (`dist/bundle/cache/`,
@@ -35,6 +36,27 @@ const englishOnlyZod = {
     b.onLoad({ filter: /.*/, namespace: 'zod-locales' }, (args) => ({
       contents: `export { default as en } from ${JSON.stringify(path.join(path.dirname(args.path), 'en.js'))}\n`,
       resolveDir: path.dirname(args.path),
+      loader: 'js',
+    }))
+  },
+}
+
+/**
+ * Gives yargs lazy stand-ins for `cliui` and `string-width`, which it calls only to render help text.
+ * Loading them builds Unicode property regexes, an `Intl.Segmenter` and East Asian width tables at
+ * start-up (~20 ms of every command); behind the stand-ins they load on the first help text instead.
+ * Inside the bundle, `require` of an ES module evaluates it on that first call.
+ */
+const lazyHelpText = {
+  name: 'yargs-lazy-help-text',
+  setup(b) {
+    b.onResolve({ filter: /^(cliui|string-width)$/ }, (args) => {
+      if (!/[\\/]node_modules[\\/]yargs[\\/]/.test(args.importer)) return undefined
+      return { path: args.path, namespace: 'lazy-help-text', pluginData: { resolveDir: args.resolveDir } }
+    })
+    b.onLoad({ filter: /.*/, namespace: 'lazy-help-text' }, (args) => ({
+      contents: `export default function lazy(...args) { return require(${JSON.stringify(args.path)}).default(...args) }\n`,
+      resolveDir: args.pluginData.resolveDir,
       loader: 'js',
     }))
   },
@@ -64,7 +86,7 @@ await build({
   // A CommonJS script has no `import.meta`: its URL is derived from `__filename` instead.
   inject: ['scripts/import-meta-url.mjs'],
   define: { 'import.meta.url': 'importMetaUrl' },
-  plugins: [englishOnlyZod],
+  plugins: [englishOnlyZod, lazyHelpText],
 })
 let text = readFileSync(cli, 'latin1')
 // The script becomes a function body: its `#!` line turns into a comment (same line numbers).
