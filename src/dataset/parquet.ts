@@ -5,7 +5,9 @@
  *
  * Steps: (1) read every file's schema from its footer in one `parquet_schema` call and check the
  * needed columns and their types; (2) one aggregation query per set of files that share the same Hive
- * key columns (normally one set); (3) convert the result column-wise into `PartialMoments`.
+ * key columns (normally one set); with the lag block, one query per time slice of whole windows when the
+ * files are clustered in time (slices.ts), so that DuckDB's window sort holds one slice, not the whole
+ * scan; (3) convert the result column-wise into `PartialMoments`.
  *
  * Hive folder values come from discovery (`SourceFile.hive`), not from DuckDB's own path parsing, so
  * the Arrow and Parquet paths share one source of truth; a Hive segment wins over a file column of the
@@ -22,7 +24,18 @@ import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Momen
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import { seriesId } from '../types.js'
 import { type DuckDbSession, openDuckDb } from './duckdb.js'
-import { type CalendarSpan, calendarSpans, momentsQuery, quoteIdent, quoteString, type XStorage } from './sql.js'
+import { planTimeSlices, type RowGroupSpan } from './slices.js'
+import {
+  type CalendarSpan,
+  calendarSpans,
+  momentsQuery,
+  quoteIdent,
+  quoteString,
+  type SqlSource,
+  sliceBoundsFit,
+  type XSlice,
+  type XStorage,
+} from './sql.js'
 
 export interface ReadParquetOptions {
   /** DuckDB worker threads (≥ 1). */
@@ -33,13 +46,32 @@ export interface ReadParquetOptions {
   readonly tempDirectory?: string
   /** Aborts between steps and interrupts a running query. */
   readonly signal?: AbortSignal
+  /**
+   * Lag block only: rows per time slice (default `lagSliceRows`); `Infinity` turns slicing off. See
+   * `readParquetPartials`.
+   */
+  readonly sliceRows?: number
 }
+
+/**
+ * Default rows per time slice of the lag block's scan: DuckDB's window sort holds about 100 bytes per row
+ * (partition and order keys plus the carried columns), so about 100 MB per slice, whatever the file size.
+ */
+export const lagSliceRows = 1_000_000
+
+/** Largest read factor (rows read over all slices / rows in the files) at which slicing still pays. */
+const maxSliceReadFactor = 2.5
 
 export interface ParquetPartials {
   /** Sorted by file, series id (`seriesId(key)`), window start. */
   readonly partials: PartialMoments[]
   /** One entry per input file, in input order. */
   readonly stats: ReadStats[]
+  /**
+   * Moments queries run: one per set of files with the same Hive keys, more when the lag block was read
+   * in time slices (plus one when a sliced scan had to be redone whole).
+   */
+  readonly scans: number
 }
 
 /**
@@ -51,6 +83,11 @@ export interface ParquetPartials {
  *   their window and in the file's `skipped`; rows with a null or non-finite timestamp count for the file
  *   only. A group made only of skipped rows yields a partial with n = 0.
  * - A file with zero rows yields no partials and `rows = 0`.
+ * - Lag block: when the x column's row-group statistics show the files clustered in time, the scan runs
+ *   in slices of whole windows of about `sliceRows` rows (slices.ts `planTimeSlices`, sql.ts `XSlice`).
+ *   Peak memory then follows the slice, not the file; results and counters are those of one scan (the
+ *   same rows meet in the same groups). Should a (file, series, window) come out of two slices, the
+ *   group is read again in one scan.
  *
  * Errors: a needed column missing from a file → NoInputError (names the file, the column, the file's
  * columns and the config key to fix); y not numeric or x neither timestamp nor numeric, or a file
@@ -63,7 +100,7 @@ export async function readParquetPartials(
 ): Promise<ParquetPartials> {
   const { signal } = options
   signal?.throwIfAborted()
-  if (files.length === 0) return { partials: [], stats: [] }
+  if (files.length === 0) return { partials: [], stats: [], scans: 0 }
   const db = await openDuckDb({
     threads: options.threads,
     ...(options.memoryLimit === undefined ? {} : { memoryLimit: options.memoryLimit }),
@@ -77,37 +114,128 @@ export async function readParquetPartials(
     const runs: SeriesRun[] = []
     const lag = plan.trackLag && plan.weight === null
     let scan = 0
+    let scans = 0
     for (const group of groupByFileKeys(files, plan)) {
       signal?.throwIfAborted()
       const x = checkColumns(group.files, plan, schemas)
       const paths = group.files.map((f) => f.path)
       const map = plan.window.kind === 'calendar' ? await calendarMap(db, paths, plan, x) : null
       const enums = lag || plan.weight !== null ? await keyEnums(db, plan, group, scan++, signal) : []
-      const q = momentsQuery(
-        plan,
-        {
-          kind: 'parquet',
-          files: paths,
-          x,
-          fileKeys: group.fileKeys,
-          fileIndex: true,
-          ...(map === null ? {} : { calendarMap: map }),
-          ...(enums.length === 0 ? {} : { keyEnums: enums }),
-        },
-        'duckdb',
-      )
-      const result = await runScan(db, wrapQuery(q.sql, q.columns.length, q.keys.length), group.files, signal)
-      signal?.throwIfAborted()
-      collect(result, plan, q.keys, group.files, stats, runs)
+      const source: SqlSource & { kind: 'parquet' } = {
+        kind: 'parquet',
+        files: paths,
+        x,
+        fileKeys: group.fileKeys,
+        fileIndex: true,
+        ...(map === null ? {} : { calendarMap: map }),
+        ...(enums.length === 0 ? {} : { keyEnums: enums }),
+      }
+      const sliceRows = options.sliceRows ?? lagSliceRows
+      const slices = lag ? await lagSlices(db, group, plan, schemas, sliceRows) : null
+      let got = slices === null ? null : await scanGroup(db, plan, group, source, slices, signal)
+      scans += slices?.length ?? 0
+      if (got === null) {
+        // A window found in two slices would mean the SQL and the kernel disagree on a window bound: one scan.
+        got = await scanGroup(db, plan, group, source, [null], signal)
+        scans++
+      }
+      if (got === null) throw new Error('one scan cannot yield a window twice')
+      for (const [path, st] of got.stats) {
+        const total = stats.get(path)
+        if (total === undefined) continue
+        total.rows += st.rows
+        total.skipped += st.skipped
+      }
+      for (const r of got.runs) runs.push(r)
     }
     runs.sort(compareRuns)
     const partials: PartialMoments[] = []
     for (const r of runs) for (const p of r.partials) partials.push(p)
-    return { partials, stats: files.map((f) => stats.get(f.path) as ReadStats) }
+    return { partials, stats: files.map((f) => stats.get(f.path) as ReadStats), scans }
   } finally {
     signal?.removeEventListener('abort', onAbort)
     db.close()
   }
+}
+
+/**
+ * Runs the moments query once per slice (`null`: the whole scan) and returns the group's runs, one per
+ * (file, series) with windows ascending, and per-file counters; null when a (file, series, window)
+ * came out of two slices.
+ */
+async function scanGroup(
+  db: DuckDbSession,
+  plan: MomentsPlan,
+  group: FileGroup,
+  source: SqlSource & { kind: 'parquet' },
+  slices: readonly (XSlice | null)[],
+  signal: AbortSignal | undefined,
+): Promise<{ runs: SeriesRun[]; stats: Map<string, ReadStats> } | null> {
+  const stats = new Map<string, ReadStats>(group.files.map((f) => [f.path, { file: f.path, rows: 0, skipped: 0 }]))
+  const pieces: SeriesRun[] = []
+  for (const slice of slices) {
+    signal?.throwIfAborted()
+    const q = momentsQuery(plan, slice === null ? source : { ...source, slice }, 'duckdb')
+    const result = await runScan(db, wrapQuery(q.sql, q.columns.length, q.keys.length), group.files, signal)
+    signal?.throwIfAborted()
+    collect(result, plan, q.keys, group.files, stats, pieces)
+  }
+  if (slices.length === 1) return { runs: pieces, stats }
+  // Stable sort: the pieces of one (file, series) stay in slice order, i.e. windows ascending.
+  pieces.sort(compareRuns)
+  const runs: SeriesRun[] = []
+  for (const p of pieces) {
+    const last = runs[runs.length - 1]
+    if (last === undefined || last.file !== p.file || last.id !== p.id) {
+      runs.push(p)
+      continue
+    }
+    const before = last.partials[last.partials.length - 1]?.windowStartMs ?? Number.NEGATIVE_INFINITY
+    if ((p.partials[0]?.windowStartMs ?? Number.POSITIVE_INFINITY) <= before) return null
+    for (const x of p.partials) last.partials.push(x)
+  }
+  return { runs, stats }
+}
+
+/**
+ * The time slices of the lag block's scan (slices.ts `planTimeSlices`) from the row-group statistics of
+ * the x column, or null for one scan: slicing off, x stored as different or unsupported types across
+ * the files (sql.ts `XSlice`), statistics missing, too few rows, files not clustered in time, or a
+ * bound that is not a whole number of the column's ticks.
+ */
+async function lagSlices(
+  db: DuckDbSession,
+  group: FileGroup,
+  plan: MomentsPlan,
+  schemas: Map<string, FileSchema>,
+  targetRows: number,
+): Promise<XSlice[] | null> {
+  if (!(targetRows < Number.POSITIVE_INFINITY) || targetRows < 1) return null
+  const types = new Set(group.files.map((f) => schemas.get(f.path)?.get(plan.x.column)))
+  const [column] = types
+  if (types.size !== 1 || column === undefined) return null
+  const epoch = timestampTicks[column] === undefined
+  const toMs = (v: string) =>
+    epoch
+      ? `TRY_CAST(${v} AS DOUBLE) * ${msPerEpochUnit[plan.x.epochUnit]}`
+      : `CAST(epoch_ms(TRY_CAST(${v} AS TIMESTAMPTZ)) AS DOUBLE)`
+  const result = await db.run(
+    `SELECT CAST(row_group_num_rows AS DOUBLE), ${toMs('stats_min_value')}, ${toMs('stats_max_value')}
+     FROM parquet_metadata([${group.files.map((f) => quoteString(f.path)).join(', ')}])
+     WHERE path_in_schema = ${quoteString(plan.x.column)}`,
+  )
+  const num = (v: unknown) => (typeof v === 'number' ? v : Number.NaN)
+  const spans: RowGroupSpan[] = ((await result.getRowsJS()) as unknown[][]).map(([rows, lo, hi]) => ({
+    rows: num(rows),
+    minMs: num(lo),
+    maxMs: num(hi),
+  }))
+  const slices = planTimeSlices(plan.window, spans, { targetRows, maxReadFactor: maxSliceReadFactor })
+  if (slices === null) return null
+  for (const s of slices) {
+    for (const b of [s.fromMs, s.toMs]) if (b !== null && !sliceBoundsFit(column, plan.x.epochUnit, b)) return null
+  }
+  return slices.map((s) => ({ ...s, column }))
 }
 
 const msPerEpochUnit: Readonly<Record<MomentsPlan['x']['epochUnit'], number>> = { s: 1000, ms: 1, us: 0.001, ns: 1e-6 }

@@ -66,6 +66,11 @@ export type SqlSource =
        * text again.
        */
       readonly keyEnums?: readonly string[]
+      /**
+       * Only the rows of one time slice (see `XSlice`); absent: every row. The reader runs one query per
+       * slice so that the lag block's sort holds one slice at a time (statistics.md §5.2).
+       */
+      readonly slice?: XSlice
     }
   | {
       /** A table or view whose column names are those of the plan. Dotted names are quoted per part. */
@@ -77,6 +82,72 @@ export type SqlSource =
       /** Tie-breaker after the timestamp for the lag block's row order (tables have no arrival order). */
       readonly orderColumn?: string
     }
+
+/**
+ * A range of whole windows, [fromMs, toMs) in epoch ms, compared on the stored x column so that DuckDB skips
+ * the row groups whose min/max statistics lie outside (a filter on the computed ticks would not be pushed
+ * into the scan). `fromMs` null: no lower bound, and rows with a null x belong here too; `toMs` null: no
+ * upper bound. Slices with shared bounds therefore split the rows without gap or overlap, whatever the
+ * statistics say (±infinity and NaN land in the first or last slice, where they count as now). Both bounds
+ * must be window starts, so every window lies wholly in one slice.
+ *
+ * `column` is the DuckDB type of the stored x column in every file of the scan: a timestamp type (not DATE)
+ * or an integer, FLOAT or DOUBLE epoch in `plan.x.epochUnit`. A bound must be a whole number of the column's
+ * ticks (`momentsQuery` throws a RangeError otherwise; `sliceBoundsFit` tells beforehand).
+ */
+export interface XSlice {
+  readonly fromMs: number | null
+  readonly toMs: number | null
+  readonly column: string
+}
+
+/** Timestamp types a slice compares against (ticks per ms of their storage). */
+const sliceTimestampTicks: Readonly<Record<string, number>> = {
+  TIMESTAMP_S: 0.001,
+  TIMESTAMP_MS: 1,
+  TIMESTAMP: 1000,
+  'TIMESTAMP WITH TIME ZONE': 1000,
+  TIMESTAMP_NS: 1_000_000,
+}
+const sliceIntegerTypes = new Set([
+  'TINYINT',
+  'SMALLINT',
+  'INTEGER',
+  'BIGINT',
+  'UTINYINT',
+  'USMALLINT',
+  'UINTEGER',
+  'UBIGINT',
+])
+const sliceFloatTypes = new Set(['FLOAT', 'DOUBLE'])
+
+/**
+ * Whether window start `ms` (epoch ms) can bound a slice of an x column of DuckDB type `column` stored in
+ * `epochUnit` (numbers only): the type is one `XSlice` supports and `ms` is a whole number of its ticks
+ * within the exact integer range. DECIMAL, DATE and HUGEINT columns are never sliced.
+ */
+export function sliceBoundsFit(column: string, epochUnit: Ticks, ms: number): boolean {
+  return sliceBound(column, epochUnit, ms) !== null
+}
+
+/** The SQL literal of bound `ms` for a column of type `column`, or null when it cannot be exact. */
+function sliceBound(column: string, epochUnit: Ticks, ms: number): string | null {
+  if (!Number.isSafeInteger(ms)) return null
+  const tsTicks = sliceTimestampTicks[column]
+  if (tsTicks !== undefined) {
+    // make_timestamp takes µs; the cast to the column's own type keeps the comparison on the stored column.
+    if (tsTicks < 1 && ms % 1000 !== 0) return null
+    return `CAST(make_timestamp(CAST(${BigInt(ms) * 1000n} AS BIGINT)) AS ${column})`
+  }
+  const per = ticksPerMs[epochUnit]
+  if (per < 1 && ms % 1000 !== 0) return null
+  const ticks = per < 1 ? BigInt(ms / 1000) : BigInt(ms) * BigInt(per)
+  if (sliceIntegerTypes.has(column))
+    return ticks >= -(2n ** 63n) && ticks < 2n ** 63n ? `CAST(${ticks} AS BIGINT)` : null
+  // A float column is compared as DOUBLE: exact when the bound is a double (t >= A ⇔ FLOOR(t) >= A, §1.2).
+  if (sliceFloatTypes.has(column)) return BigInt(Number(ticks)) === ticks ? `CAST(${ticks} AS DOUBLE)` : null
+  return null
+}
 
 /** The output columns, in order, of the moments query (`keys` are the key columns the SQL groups by). */
 export interface MomentsQuery {
@@ -293,7 +364,25 @@ class Gen {
       if (s.kind === 'parquet') cols.push('file_row_number AS ss_rn')
       else if (s.orderColumn !== undefined) cols.push(`${quoteIdent(s.orderColumn)} AS ss_rn`)
     }
-    return `SELECT ${cols.join(',\n         ')}\n  FROM ${this.fromClause()}`
+    const where = s.kind === 'parquet' && s.slice !== undefined ? `\n  WHERE ${this.sliceFilter(s.slice)}` : ''
+    return `SELECT ${cols.join(',\n         ')}\n  FROM ${this.fromClause()}${where}`
+  }
+
+  /** The `XSlice` predicate on the stored x column. */
+  private sliceFilter(slice: XSlice): string {
+    const col = quoteIdent(this.plan.x.column)
+    const bound = (ms: number) => {
+      const b = sliceBound(slice.column, this.plan.x.epochUnit, ms)
+      if (b === null) throw new RangeError(`slice bound ${ms} does not fit an x column of type ${slice.column}`)
+      return b
+    }
+    const parts: string[] = []
+    if (slice.fromMs !== null) parts.push(`${col} >= ${bound(slice.fromMs)}`)
+    if (slice.toMs !== null) {
+      const below = `${col} < ${bound(slice.toMs)}`
+      parts.push(slice.fromMs === null ? `(${below} OR ${col} IS NULL)` : below)
+    }
+    return parts.length === 0 ? 'TRUE' : parts.join(' AND ')
   }
 
   /** x column → integer ticks (timestamps) or the raw number (epoch); NULL when not finite. */

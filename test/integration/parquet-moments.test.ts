@@ -421,6 +421,10 @@ describe('readParquetPartials', () => {
   })
 
   it('returns nothing for an empty file list', async () => {
-    await expect(readParquetPartials([], planFor(), { threads: 1 })).resolves.toEqual({ partials: [], stats: [] })
+    await expect(readParquetPartials([], planFor(), { threads: 1 })).resolves.toEqual({
+      partials: [],
+      stats: [],
+      scans: 0,
+    })
   })
 })

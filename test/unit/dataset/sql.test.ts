@@ -8,6 +8,7 @@ import {
   momentsSql,
   quoteIdent,
   quoteString,
+  sliceBoundsFit,
 } from '../../../src/dataset/sql.js'
 import { parseWindow, type WindowSpec, windowEndOf, windowStartOf } from '../../../src/kernel/window.js'
 import type { MomentsPlan } from '../../../src/types.js'
@@ -240,5 +241,53 @@ describe('momentsQuery', () => {
     expect(sql).toContain('CAST(CAST("unit" AS VARCHAR) AS "ss_e""0") AS ss_k0')
     expect(sql).toContain('CAST(ss_k0 AS VARCHAR) AS "unit"')
     expect(sql).toContain('PARTITION BY ss_file, ss_k0, ss_wt')
+  })
+
+  it('filters one time slice on the stored x column, the first slice taking the null timestamps', () => {
+    const lag = { ...plan, trackLag: true }
+    const from = Date.UTC(2026, 11, 1, 3)
+    const to = Date.UTC(2026, 11, 1, 6)
+    const column = 'TIMESTAMP WITH TIME ZONE'
+    const lit = (ms: number) => `CAST(make_timestamp(CAST(${ms * 1000} AS BIGINT)) AS TIMESTAMP WITH TIME ZONE)`
+    const first = momentsQuery(lag, { ...parquet, slice: { fromMs: null, toMs: from, column } }, 'duckdb').sql
+    expect(first).toContain(`WHERE ("ts" < ${lit(from)} OR "ts" IS NULL)\n)`)
+    const mid = momentsQuery(lag, { ...parquet, slice: { fromMs: from, toMs: to, column } }, 'duckdb').sql
+    expect(mid).toContain(`WHERE "ts" >= ${lit(from)} AND "ts" < ${lit(to)}\n)`)
+    const last = momentsQuery(lag, { ...parquet, slice: { fromMs: to, toMs: null, column } }, 'duckdb').sql
+    expect(last).toContain(`WHERE "ts" >= ${lit(to)}\n)`)
+    const epoch = { ...parquet, x: { kind: 'epoch', integer: true } } as const
+    const ns = { ...lag, x: { column: 'ts', epochUnit: 'ns' } } as const
+    const big = momentsQuery(ns, { ...epoch, slice: { fromMs: from, toMs: null, column: 'BIGINT' } }, 'duckdb').sql
+    expect(big).toContain(`WHERE "ts" >= CAST(${BigInt(from) * 1_000_000n} AS BIGINT)`)
+    expect(momentsQuery(lag, parquet, 'duckdb').sql).not.toContain('WHERE')
+  })
+
+  it('throws a RangeError for a slice bound the x column cannot hold exactly', () => {
+    const slice = { fromMs: Date.UTC(2026, 11, 1, 3) + 500, toMs: null, column: 'TIMESTAMP_S' }
+    expect(() => momentsQuery({ ...plan, trackLag: true }, { ...parquet, slice }, 'duckdb')).toThrow(
+      /slice bound \d+ does not fit an x column of type TIMESTAMP_S/,
+    )
+  })
+})
+
+describe('sliceBoundsFit', () => {
+  const t = Date.UTC(2026, 11, 1, 3)
+
+  it('accepts timestamp, integer and float columns when the bound is a whole number of their ticks', () => {
+    for (const c of ['TIMESTAMP', 'TIMESTAMP WITH TIME ZONE', 'TIMESTAMP_MS', 'TIMESTAMP_NS', 'TIMESTAMP_S']) {
+      expect(sliceBoundsFit(c, 'ms', t)).toBe(true)
+    }
+    expect(sliceBoundsFit('TIMESTAMP_S', 'ms', t + 1)).toBe(false)
+    expect(sliceBoundsFit('BIGINT', 'ns', t)).toBe(true)
+    expect(sliceBoundsFit('INTEGER', 's', t)).toBe(true)
+    expect(sliceBoundsFit('INTEGER', 's', t + 1)).toBe(false)
+    expect(sliceBoundsFit('DOUBLE', 'us', t)).toBe(true)
+  })
+
+  it('refuses DECIMAL, DATE and HUGEINT columns, and float bounds that are not exact doubles', () => {
+    for (const c of ['DECIMAL(18,3)', 'DATE', 'HUGEINT', 'VARCHAR']) expect(sliceBoundsFit(c, 'ms', t)).toBe(false)
+    // 2026-12-01T03:00:00.001Z in ns is 1,796,094,000,001,000,000: above 2^53 and not a multiple of 256.
+    expect(sliceBoundsFit('DOUBLE', 'ns', t + 1)).toBe(false)
+    expect(sliceBoundsFit('BIGINT', 'ns', t + 1)).toBe(true)
   })
 })
