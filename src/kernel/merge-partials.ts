@@ -58,7 +58,7 @@ export function mergePartials(partials: Iterable<PartialMoments>): MergedState[]
     for (const start of [...byStart.keys()].sort((a, b) => a - b)) {
       const held = byStart.get(start) as PartialMoments | PartialMoments[]
       if (!Array.isArray(held)) {
-        // One partial with rows: its moments are the merge, as they are.
+        // A lone partial (every window of a first run): its moments are the merge as they are when it has rows.
         const m =
           held.moments.n > 0 ? held.moments : mergeMoments(emptyMoments(held.moments.lag !== null), held.moments)
         out.push({ id, key: held.key, windowStartMs: start, moments: m, parts: 1 })
