@@ -33,8 +33,9 @@ export function weightKindOf(config: Config): WeightKind {
 
 /**
  * One `fits/` row per merged state with at least one accepted row. Each row is built as one object literal: the
- * projection columns are computed into locals (no per-row options, prediction or column objects), since a run builds
- * ~24,000 rows and every short-lived object adds to the minor GCs that dominate this stage.
+ * projection columns are computed into locals (no per-row options, prediction or column objects; only a configured
+ * `projection.limit` builds its crossing per row), since a run builds ~24,000 rows and every short-lived object adds
+ * to the minor GCs that dominate this stage.
  */
 export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow[] {
   const { config } = ctx
