@@ -97,8 +97,10 @@ if (nonAscii !== null) {
     `${cli} holds a non-ASCII character at offset ${nonAscii.index}; launch.ts reads it as latin1: keep esbuild's ASCII output`,
   )
 }
-writeFileSync(cli, text, 'latin1')
+// The bundle starts with its own id, which launch.ts compares with the id it was built with: a cache is
+// used only when the two files come from the same build (V8 itself checks only the source's length).
 const bundleId = createHash('sha256').update(text).digest('hex').slice(0, 16)
+writeFileSync(cli, `/*slopeshift-bundle:${bundleId}*/${text}`, 'latin1')
 
 await build({
   ...common,

@@ -44,8 +44,10 @@ function runCached(file: string): void {
   // The build checks that the bundle is pure ASCII, so latin1 reads it exactly (and fastest).
   const source = readFileSync(file, 'latin1')
   const cacheDir = codeCacheDir(process.env, dir)
+  // A bundle from another build than this entry (replaced while starting) runs without a cache.
+  const sameBuild = source.startsWith(`/*slopeshift-bundle:${__SLOPESHIFT_BUNDLE_ID__}*/`)
   const cacheFile =
-    cacheDir === null
+    cacheDir === null || !sameBuild
       ? null
       : path.join(
           cacheDir,

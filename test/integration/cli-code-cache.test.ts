@@ -1,14 +1,16 @@
 /**
  * The shipped entry's V8 code cache (src/cli/code-cache.ts, launch.ts), end to end on the built CLI: the
  * first successful command writes its cache file, later runs give the same output, a damaged cache is
- * rejected by V8 and rewritten, a failed command writes none, and `off` writes nothing.
+ * rejected by V8 and rewritten, a failed command writes none, the cache can be turned off, and a bundle
+ * from another build than its entry runs without one.
  */
-import { mkdtemp, readdir, readFile, rm, stat, writeFile } from 'node:fs/promises'
+import { spawnSync } from 'node:child_process'
+import { copyFile, mkdir, mkdtemp, readdir, readFile, rm, stat, writeFile } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
 import path from 'node:path'
 import { afterAll, beforeAll, describe, expect, it } from 'vitest'
 import { ExitCode } from '../../src/errors.js'
-import { describeResult, hasBuiltCli, noCliReason, projectRoot, runCli } from '../helpers/cli.js'
+import { cliPath, describeResult, hasBuiltCli, noCliReason, projectRoot, runCli } from '../helpers/cli.js'
 
 let base: string
 beforeAll(async () => {
@@ -67,5 +69,34 @@ describe.skipIf(!hasBuiltCli)(`the built CLI's code cache${hasBuiltCli ? '' : ` 
     const off = await runCli(['--version'], { env: { SLOPESHIFT_CODE_CACHE: 'off' } })
     expect(off.code, describeResult(off)).toBe(0)
     expect(off.stdout.trim()).toBe(version)
+  })
+
+  it('runs without a cache when the bundle is not from the same build as the entry', async () => {
+    const copy = path.join(base, 'copy')
+    await mkdir(copy)
+    await copyFile(cliPath, path.join(copy, 'slopeshift.js'))
+    const bundle = await readFile(path.join(path.dirname(cliPath), 'cli.cjs'), 'latin1')
+    expect(bundle).toMatch(/^\/\*slopeshift-bundle:[0-9a-f]{16}\*\//)
+    const run = (cache: string) =>
+      spawnSync(process.execPath, [path.join(copy, 'slopeshift.js'), '--version'], {
+        cwd: projectRoot,
+        encoding: 'utf8',
+        env: { ...process.env, SLOPESHIFT_CODE_CACHE: cache },
+      })
+    // The unchanged copy writes its cache ...
+    await writeFile(path.join(copy, 'cli.cjs'), bundle, 'latin1')
+    const same = run(path.join(base, 'copy-same'))
+    expect(same.status, same.stderr).toBe(0)
+    expect(await readdir(path.join(base, 'copy-same'))).toHaveLength(1)
+    // ... a bundle with another build's id runs the same, from source, and writes none.
+    await writeFile(
+      path.join(copy, 'cli.cjs'),
+      bundle.replace(/^\/\*slopeshift-bundle:[0-9a-f]{16}/, '/*slopeshift-bundle:0000000000000000'),
+      'latin1',
+    )
+    const other = run(path.join(base, 'copy-other'))
+    expect(other.status, other.stderr).toBe(0)
+    expect(other.stdout.trim()).toBe(version)
+    await expect(readdir(path.join(base, 'copy-other'))).rejects.toMatchObject({ code: 'ENOENT' })
   })
 })
