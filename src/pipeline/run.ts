@@ -297,42 +297,10 @@ async function runLocked(
     await partialsStored()
     lap('partials stored', { files: toRead.length })
 
-    // Stage the tables, publish, commit.
+    // Stage the digests, then the tables, publish, commit.
     const tables = { fits: path.join(root, 'fits'), shifts: path.join(root, 'shifts'), runs: path.join(root, 'runs') }
-    const staging = await createStaging(root, runId)
-    const write = { keyColumns: config.source.keys, compression: config.output.compression, connection }
-    const replace = [...starts]
-    const remove: string[] = []
-    for (const table of ['fits', 'shifts'] as const) {
-      const rows = table === 'fits' ? fits : shifts
-      const r = await replaceWindows(table, rows as never, {
-        ...write,
-        dir: tables[table],
-        stagingDir: path.join(staging, table),
-        replaceWindowStarts: replace,
-      })
-      for (const p of r.removed) remove.push(`${table}/${p}/${partitionFileName}`)
-    }
-    if (options.full === true) {
-      for (const table of ['fits', 'shifts'] as const) {
-        for (const f of await listTableFiles(table, tables[table])) {
-          remove.push(path.relative(root, f).split(path.sep).join('/'))
-        }
-      }
-    }
-    if (cutoffMs !== null) {
-      const cutoffDate = new Date(cutoffMs).toISOString().slice(0, 10)
-      for (const table of ['fits', 'shifts', 'runs'] as const) {
-        for (const f of await listTableFiles(table, tables[table])) {
-          const date = /=(\d{4}-\d{2}-\d{2})$/.exec(path.basename(path.dirname(f)))?.[1]
-          if (date !== undefined && date < cutoffDate) remove.push(path.relative(root, f).split(path.sep).join('/'))
-        }
-      }
-    }
-
     const rowsRead = read.stats.reduce((a, s) => a + s.rows, 0)
     const rowsSkipped = read.stats.reduce((a, s) => a + s.skipped, 0)
-    lap('tables staged')
     const stage = await stageDigests({
       job: config.job,
       runId,
@@ -347,6 +315,7 @@ async function runLocked(
       nowMs: startedAt,
     })
     const queued = stage.staged.filter((s) => s.enqueue?.kind === 'queued').length
+    lap('digests staged')
     const summaryOf = (endedAt: number, sent: number, pending: number): RunSummary => ({
       run_id: runId,
       job: config.job,
@@ -375,14 +344,66 @@ async function runLocked(
       notices: { sent, pending },
       output: { root, ...tables },
     })
-    // Merge into the day's runs/ partition: earlier runs' rows of that day stay (writeTable would drop them).
-    await replacePartitions('runs', [runRowOf(summaryOf(deps.now(), 0, queued))], {
-      ...write,
-      dir: tables.runs,
-      stagingDir: path.join(staging, 'runs'),
-    })
+
+    // The three tables are staged at once, each on its own connection: DuckDB encodes one while this
+    // thread gathers the next. All settle before any error is thrown.
+    const staging = await createStaging(root, runId)
+    const write = { keyColumns: config.source.keys, compression: config.output.compression }
+    const replace = [...starts]
+    const [fitsWritten, shiftsWritten, runsWritten] = await Promise.allSettled([
+      replaceWindows('fits', fits, {
+        ...write,
+        connection,
+        dir: tables.fits,
+        stagingDir: path.join(staging, 'fits'),
+        replaceWindowStarts: replace,
+      }),
+      connect().then((c) =>
+        replaceWindows('shifts', shifts, {
+          ...write,
+          connection: c,
+          dir: tables.shifts,
+          stagingDir: path.join(staging, 'shifts'),
+          replaceWindowStarts: replace,
+        }),
+      ),
+      // Merged into the day's runs/ partition: earlier runs' rows of that day stay.
+      connect().then((c) =>
+        replacePartitions('runs', [runRowOf(summaryOf(deps.now(), 0, queued))], {
+          ...write,
+          connection: c,
+          dir: tables.runs,
+          stagingDir: path.join(staging, 'runs'),
+        }),
+      ),
+    ])
+    const remove: string[] = []
+    for (const [table, r] of [
+      ['fits', fitsWritten],
+      ['shifts', shiftsWritten],
+      ['runs', runsWritten],
+    ] as const) {
+      if (r.status === 'rejected') throw r.reason
+      if ('removed' in r.value) for (const p of r.value.removed) remove.push(`${table}/${p}/${partitionFileName}`)
+    }
+    if (options.full === true) {
+      for (const table of ['fits', 'shifts'] as const) {
+        for (const f of await listTableFiles(table, tables[table])) {
+          remove.push(path.relative(root, f).split(path.sep).join('/'))
+        }
+      }
+    }
+    if (cutoffMs !== null) {
+      const cutoffDate = new Date(cutoffMs).toISOString().slice(0, 10)
+      for (const table of ['fits', 'shifts', 'runs'] as const) {
+        for (const f of await listTableFiles(table, tables[table])) {
+          const date = /=(\d{4}-\d{2}-\d{2})$/.exec(path.basename(path.dirname(f)))?.[1]
+          if (date !== undefined && date < cutoffDate) remove.push(path.relative(root, f).split(path.sep).join('/'))
+        }
+      }
+    }
     signal?.throwIfAborted()
-    lap('digests staged')
+    lap('tables staged')
     await publish(staging, root, { remove })
     // A rerun that changed no entry commits the committed entries as they are (the ledger reuses their file).
     const entries = entriesUnchanged(filePlan, committed.files)
