@@ -108,5 +108,9 @@ await build({
   format: 'esm',
   outdir,
   define: { __SLOPESHIFT_BUNDLE_ID__: JSON.stringify(bundleId) },
+  // CommonJS packages inside an ES module bundle (yaml in the worker) call `require` for Node built-ins.
+  banner: {
+    js: "import { createRequire as __ssRequire } from 'node:module'; const require = __ssRequire(import.meta.url);",
+  },
 })
 chmodSync(path.join(outdir, 'slopeshift.js'), 0o755)

@@ -17,6 +17,7 @@ import { createRequire } from 'node:module'
 import path from 'node:path'
 import { fileURLToPath } from 'node:url'
 import vm from 'node:vm'
+import { startEarlyDiscovery } from '../dataset/early-discovery.js'
 import { codeCacheDir, codeCacheName, commandOf, readCodeCache, writeCodeCache } from './code-cache.js'
 
 declare const __SLOPESHIFT_BUNDLE_ID__: string
@@ -32,6 +33,8 @@ type BundleFunction = (
 
 const dir = path.dirname(fileURLToPath(import.meta.url))
 const file = path.join(dir, 'cli.cjs')
+// `run` lists its inputs in a worker from now on, while the bundle below loads (early-discovery.ts).
+startEarlyDiscovery(process.argv.slice(2), path.join(dir, 'discover-worker.js'))
 if (process.sourceMapsEnabled) {
   // `--enable-source-maps` (stack traces in TypeScript terms) works only for modules Node loads itself.
   createRequire(file)(file)

@@ -5,10 +5,12 @@
  */
 import { readFile } from 'node:fs/promises'
 import path from 'node:path'
-import { parse as parseYaml, YAMLParseError } from 'yaml'
 import { z } from 'zod'
 import { ConfigError } from '../errors.js'
 import { type Config, configSchema } from './schema.js'
+import { interpolateEnv, parseConfigText } from './text.js'
+
+export { parseConfigText } from './text.js'
 
 /** Values given on the command line, applied over the file: dotted key path → value. */
 export type ConfigOverrides = Readonly<Record<string, unknown>>
@@ -45,25 +47,6 @@ export async function loadConfig(file: string, options: LoadConfigOptions = {}):
   return { config: resolveConfig(raw, abs, options), file: abs }
 }
 
-/** Parses YAML or JSON text (JSON is valid YAML, but `.json` files get JSON's stricter errors). */
-export function parseConfigText(text: string, file: string): unknown {
-  try {
-    return file.endsWith('.json') ? JSON.parse(text) : parseYaml(text)
-  } catch (cause) {
-    const where =
-      cause instanceof YAMLParseError && cause.linePos
-        ? ` at line ${cause.linePos[0].line}, column ${cause.linePos[0].col}`
-        : ''
-    throw new ConfigError(
-      `config file ${file} is not valid ${file.endsWith('.json') ? 'JSON' : 'YAML'}${where}: ${(cause as Error).message.split('\n')[0]}`,
-      {
-        context: { file },
-        cause,
-      },
-    )
-  }
-}
-
 /**
  * Validates an already-parsed config object: interpolation, overrides, schema, path resolution.
  * `file` is used in messages and as the base for relative paths.
@@ -71,7 +54,7 @@ export function parseConfigText(text: string, file: string): unknown {
 export function resolveConfig(raw: unknown, file: string, options: LoadConfigOptions = {}): Config {
   const env = options.env ?? process.env
   const missing: string[] = []
-  let value = interpolate(raw, env, [], missing)
+  let value = interpolateEnv(raw, env, missing)
   if (missing.length > 0) {
     throw new ConfigError(
       `config file ${file} refers to unset environment variables:\n${missing.join('\n')}\nset them in the job's environment`,
@@ -98,31 +81,6 @@ export function resolveConfig(raw: unknown, file: string, options: LoadConfigOpt
     },
     output: { ...config.output, root: path.resolve(base, config.output.root) },
   }
-}
-
-const envRef = /\$\{([A-Za-z_][A-Za-z0-9_]*)(?::-([^}]*))?\}/g
-
-/** Replaces `${NAME}` and `${NAME:-default}` in every string; records unset names with their key path. */
-function interpolate(
-  value: unknown,
-  env: Readonly<Record<string, string | undefined>>,
-  at: readonly string[],
-  missing: string[],
-): unknown {
-  if (typeof value === 'string') {
-    return value.replace(envRef, (_m, name: string, fallback: string | undefined) => {
-      const v = env[name]
-      if (v !== undefined && v !== '') return v
-      if (fallback !== undefined) return fallback
-      missing.push(`✖ environment variable ${name} is not set\n  → at ${at.join('.') || '(root)'}`)
-      return ''
-    })
-  }
-  if (Array.isArray(value)) return value.map((v, i) => interpolate(v, env, [...at, String(i)], missing))
-  if (value !== null && typeof value === 'object') {
-    return Object.fromEntries(Object.entries(value).map(([k, v]) => [k, interpolate(v, env, [...at, k], missing)]))
-  }
-  return value
 }
 
 function setPath(target: unknown, keys: readonly string[], v: unknown): unknown {

@@ -1,5 +1,7 @@
 import type { CommandModule } from 'yargs'
+import type { Config } from '../../config/schema.js'
 import { discoverInWorker } from '../../dataset/discover-thread.js'
+import { dropEarlyDiscovery, takeEarlyDiscovery } from '../../dataset/early-discovery.js'
 import { UsageError } from '../../errors.js'
 import { discoverOptionsOf } from '../../pipeline/plan.js'
 import type { RunSummary } from '../../pipeline/summary.js'
@@ -56,9 +58,24 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
       const range = timeRange(args.from, args.to)
       // Loaded on demand: `--help`, `--version` and other commands start without the engines.
       const { loadConfig } = await import('../../config/load.js')
-      const { config } = await loadConfig(args.config)
-      // List the inputs in a worker thread while this one loads the engines (10,000 folders: ~0.3 s).
-      const discovery = discoverInWorker(config.source.paths, discoverOptionsOf(config))
+      let config: Config
+      try {
+        config = (await loadConfig(args.config)).config
+      } catch (err) {
+        dropEarlyDiscovery()
+        throw err
+      }
+      // List the inputs in a worker thread while this one loads the engines (10,000 folders: ~0.3 s); the
+      // CLI entry may have started that already, from a quick read of the config (early-discovery.ts).
+      const expected = { inputs: config.source.paths, options: discoverOptionsOf(config) }
+      const early = takeEarlyDiscovery(args.config, expected)
+      const discovery =
+        early === null
+          ? discoverInWorker(expected.inputs, expected.options)
+          : early.then((found) => {
+              deps.log.debug({ used: found !== null }, 'early input listing checked')
+              return found ?? discoverInWorker(expected.inputs, expected.options)
+            })
       discovery.catch(() => undefined) // the run reports it; a run that fails earlier must not crash on it
       const { runJob } = await import('../../pipeline/run.js')
       const progress = createProgress(deps.log, args.progress && deps.isTty, deps.now)
