@@ -88,7 +88,15 @@ export async function runJob(config: Config, options: RunOptions, deps: RunDeps)
   const log = deps.log.child({ runId, job: config.job })
   const root = config.output.root
   await ensureDir(root)
+  const lockAskedAt = performance.now()
   const release = await acquireRunLock(root, { runId, waitMs: options.lockWaitMs ?? 0 })
+  // A listing started before a wait for another run's lock may be stale (that run may have been the one
+  // that dropped or added files): list again after a wait.
+  if (deps.discovery !== undefined && performance.now() - lockAskedAt > staleListingMs) {
+    deps.discovery.catch(() => undefined)
+    const { discovery: _stale, ...fresh } = deps
+    deps = fresh
+  }
   try {
     // Spill files a killed run left behind (DuckDB removes its own on a clean close); we hold the lock.
     await rm(spillDir(root), { recursive: true, force: true })
@@ -514,6 +522,9 @@ function windowSpans(partials: readonly PartialMoments[]): Map<string, WindowSpa
 function nextTurn(): Promise<void> {
   return new Promise((resolve) => setImmediate(resolve))
 }
+
+/** How long a wait for the run lock may last before a listing started earlier is thrown away. */
+const staleListingMs = 1000
 
 /** `<root>/_state/spill`: DuckDB's spill folders (one per instance), on the job's volume, not the working folder. */
 function spillDir(root: string): string {

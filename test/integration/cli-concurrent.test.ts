@@ -98,6 +98,41 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
     expect(runs.map((r) => r.run_id)).toEqual([done.summary?.run_id, waited.summary?.run_id])
   })
 
+  it('lists the inputs again after waiting for the lock, so a file added meanwhile is read', async () => {
+    const ownLake = path.join(base, 'late-lake')
+    for (let day = 0; day < days; day++) await writeDay(ownLake, day)
+    const root = path.join(base, 'wait-late')
+    const config = await writeJobConfig(path.join(base, 'wait-late.json'), { paths: [ownLake], root })
+    const first = spawnCli(['run', '--config', config, '--json'])
+    expect(await first.waitForLog('"run started"')).toBe(true)
+    first.child.kill('SIGSTOP')
+    // The waiter's entry lists the lake before it waits (early discovery); the day added below is not in it.
+    const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
+    try {
+      const pid = second.child.pid
+      const waiting = await until(
+        async () =>
+          (await readdir(path.join(root, '_state'))).some(
+            (n) => n.startsWith(`run.lock.${pid}-`) && n.endsWith('.tmp'),
+          ),
+        30_000,
+      )
+      expect(waiting, 'second run never started waiting for the lock').toBe(true)
+      await writeDay(ownLake, days)
+      await new Promise((resolve) => setTimeout(resolve, 1200)) // past the wait after which a listing is stale
+    } finally {
+      first.child.kill('SIGCONT')
+    }
+    const done = await first.result
+    expect(done.code, describeResult(done)).toBe(0)
+    const waited = await second.result
+    expect(waited.code, describeResult(waited)).toBe(0)
+    expect(done.summary?.files.read).toBeGreaterThanOrEqual(days)
+    // Whatever the first run saw, the waiter saw the lake as it was after the wait: nothing is left unread.
+    expect((done.summary?.files.read ?? 0) + (waited.summary?.files.read ?? 0)).toBe(days + 1)
+    expect((await readLedger(root)).files.length).toBe(days + 1)
+  })
+
   it('lets exactly one of two runs started together do the work', async () => {
     const root = path.join(base, 'together')
     const config = await writeJobConfig(path.join(base, 'together.json'), { paths: [lake], root })
