@@ -40,20 +40,8 @@ export function encodeDiscovery(d: Discovery): DiscoveryWire {
     paths[i] = f.path
     size[i] = f.size
     mtimeMs[i] = f.mtimeMs
-    let k = kindIndex.get(f.kind)
-    if (k === undefined) {
-      k = kinds.length
-      kindIndex.set(f.kind, k)
-      kinds.push(f.kind)
-    }
-    kind[i] = k
-    let h = hiveIndex.get(f.hive)
-    if (h === undefined) {
-      h = hives.length
-      hiveIndex.set(f.hive, h)
-      hives.push(f.hive)
-    }
-    hive[i] = h
+    kind[i] = indexOf(f.kind, kindIndex, kinds)
+    hive[i] = indexOf(f.hive, hiveIndex, hives)
   }
   return {
     paths: paths.join('\u0000'),
@@ -65,6 +53,17 @@ export function encodeDiscovery(d: Discovery): DiscoveryWire {
     hives: JSON.stringify(hives),
     ignored: d.ignored,
   }
+}
+
+/** Position of `value` in `list` (by identity), appending it on first sight. */
+function indexOf<T>(value: T, index: Map<T, number>, list: T[]): number {
+  let i = index.get(value)
+  if (i === undefined) {
+    i = list.length
+    index.set(value, i)
+    list.push(value)
+  }
+  return i
 }
 
 /** The buffers of `wire` to transfer with it. */

@@ -35,6 +35,15 @@ async function until(check: () => Promise<boolean>, timeoutMs: number): Promise<
   return false
 }
 
+/** True once the run with `pid` waits for the lock of `root`: it keeps its candidate lock file `run.lock.<pid>-<random>.tmp` while it polls. */
+function waitingForLock(root: string, pid: number | undefined): Promise<boolean> {
+  return until(
+    async () =>
+      (await readdir(path.join(root, '_state'))).some((n) => n.startsWith(`run.lock.${pid}-`) && n.endsWith('.tmp')),
+    30_000,
+  )
+}
+
 describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'built CLI' : noCliReason})`, () => {
   it('exits 75 and names the holder when another run holds the lock and --lock-wait is 0', async () => {
     const root = path.join(base, 'no-wait')
@@ -70,16 +79,7 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
     first.child.kill('SIGSTOP')
     const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
     try {
-      const pid = second.child.pid
-      // The waiter keeps its candidate lock file `run.lock.<pid>-<random>.tmp` while it polls.
-      const waiting = await until(
-        async () =>
-          (await readdir(path.join(root, '_state'))).some(
-            (n) => n.startsWith(`run.lock.${pid}-`) && n.endsWith('.tmp'),
-          ),
-        30_000,
-      )
-      expect(waiting, 'second run never started waiting for the lock').toBe(true)
+      expect(await waitingForLock(root, second.child.pid), 'second run never started waiting for the lock').toBe(true)
     } finally {
       first.child.kill('SIGCONT')
     }
@@ -109,15 +109,7 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
     // The waiter's entry lists the lake before it waits (early discovery); the day added below is not in it.
     const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
     try {
-      const pid = second.child.pid
-      const waiting = await until(
-        async () =>
-          (await readdir(path.join(root, '_state'))).some(
-            (n) => n.startsWith(`run.lock.${pid}-`) && n.endsWith('.tmp'),
-          ),
-        30_000,
-      )
-      expect(waiting, 'second run never started waiting for the lock').toBe(true)
+      expect(await waitingForLock(root, second.child.pid), 'second run never started waiting for the lock').toBe(true)
       await writeDay(ownLake, days)
       await new Promise((resolve) => setTimeout(resolve, 1200)) // past the wait after which a listing is stale
     } finally {
