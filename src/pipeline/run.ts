@@ -241,7 +241,13 @@ async function runLocked(
     const oldPartials = await readStoredPartials(ledgerPartialsFiles(root, replacedEntries), { connection })
     const lap = (stage: string, extra: Record<string, number> = {}): void => {
       const now = performance.now()
-      log.debug({ stage, durationMs: Math.round(now - mark), ...extra }, 'stage finished')
+      // Memory beside each stage: where a run's peak comes from is otherwise invisible to operators.
+      const mem = process.memoryUsage()
+      const mb = (bytes: number) => Math.round(bytes / 1_048_576)
+      log.debug(
+        { stage, durationMs: Math.round(now - mark), rssMb: mb(mem.rss), heapUsedMb: mb(mem.heapUsed), ...extra },
+        'stage finished',
+      )
       mark = now
     }
     lap('stored partials read', { files: replacedEntries.length })
