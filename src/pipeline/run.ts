@@ -205,254 +205,228 @@ async function runLocked(
   signal?.throwIfAborted()
   const byFile = groupByFile(read.partials)
   let mark = performance.now()
-  // The partials files are written on their own connections while this thread merges, fits and tests
-  // (DuckDB encodes them on its threads); they must all be on disk before the publish. `storing` never
-  // rejects: it resolves to the first error, so a failure on either side waits for the other to settle.
-  const storing = writeAllPartials(
+  await writeAllPartials(
     [...filePlan.new, ...filePlan.changed].map((f) => ({
       target: partialsFilePath(root, f.path, f.fingerprint ?? ''),
       partials: byFile.get(f.path) ?? [],
     })),
+    connection,
     connect,
     signal,
-  ).then(
-    () => null,
-    (err: unknown) => ({ err }),
   )
-  // The steps below are long stretches of synchronous work: let the lanes reach their first COPY first
-  // (a connection, a folder, the columns handed to DuckDB: one event-loop turn each), then let them on
-  // between steps. Without these turns the files were written only after the tests (measured).
-  for (let i = 0; i < 6; i++) await nextTurn()
-  try {
-    return await runComputed()
-  } catch (err) {
-    await storing
-    throw err
+  signal?.throwIfAborted()
+
+  // Which windows change: partials replaced, baselines moved, windows closed by the new watermark, --from/--to.
+  const replacedEntries = [...filePlan.changed.map((f) => f.previous), ...filePlan.deleted].filter((e) => e !== null)
+  const oldPartials = await readStoredPartials(ledgerPartialsFiles(root, replacedEntries), { connection })
+  const lap = (stage: string, extra: Record<string, number> = {}): void => {
+    const now = performance.now()
+    // Memory beside each stage: where a run's peak comes from is otherwise invisible to operators.
+    const mem = process.memoryUsage()
+    const mb = (bytes: number) => Math.round(bytes / 1_048_576)
+    log.debug(
+      { stage, durationMs: Math.round(now - mark), rssMb: mb(mem.rss), heapUsedMb: mb(mem.heapUsed), ...extra },
+      'stage finished',
+    )
+    mark = now
+  }
+  lap('partials stored', { files: toRead.length })
+  // `ledger`, not `committed`: --full ignores the old latest timestamp too (its files may be gone).
+  const maxTsMs = maxOf(ledger.maxTsMs, maxTimestampMs(read.partials, config))
+  const watermarkMs =
+    (config.detect.watermark === 'clock' ? startedAt : (maxTsMs ?? startedAt)) - config.detect.allowedLatenessMs
+  const starts = new Set<number>(affectedWindowStarts(oldPartials, read.partials, k, window))
+  if (options.full === true) for (const p of oldPartials) starts.add(p.windowStartMs)
+  for (const s of closedSince(window, ledger.watermarkMs, watermarkMs, maxTsMs)) starts.add(s)
+  if (options.fromMs !== undefined && options.toMs !== undefined) {
+    for (const s of windowStartsBetween(window, options.fromMs, options.toMs)) starts.add(s)
+  }
+  // Retention: windows starting before the cutoff are frozen (never recomputed) and their partitions dropped.
+  const cutoffMs = config.output.retentionDays > 0 ? watermarkMs - config.output.retentionDays * 86_400_000 : null
+  if (cutoffMs !== null) for (const s of [...starts]) if (s < cutoffMs) starts.delete(s)
+  const readStarts = new Set(starts)
+  for (const s of starts) {
+    let b = s
+    for (let j = 0; j < k; j++) {
+      b = previousWindowStart(window, b)
+      readStarts.add(b)
+    }
   }
 
-  async function partialsStored(): Promise<void> {
-    const failed = await storing
-    if (failed !== null) throw failed.err
-  }
-
-  async function runComputed(): Promise<RunSummary> {
-    // Which windows change: partials replaced, baselines moved, windows closed by the new watermark, --from/--to.
-    const replacedEntries = [...filePlan.changed.map((f) => f.previous), ...filePlan.deleted].filter((e) => e !== null)
-    const oldPartials = await readStoredPartials(ledgerPartialsFiles(root, replacedEntries), { connection })
-    const lap = (stage: string, extra: Record<string, number> = {}): void => {
-      const now = performance.now()
-      // Memory beside each stage: where a run's peak comes from is otherwise invisible to operators.
-      const mem = process.memoryUsage()
-      const mb = (bytes: number) => Math.round(bytes / 1_048_576)
-      log.debug(
-        { stage, durationMs: Math.round(now - mark), rssMb: mb(mem.rss), heapUsedMb: mb(mem.heapUsed), ...extra },
-        'stage finished',
-      )
-      mark = now
-    }
-    lap('stored partials read', { files: replacedEntries.length })
-    // `ledger`, not `committed`: --full ignores the old latest timestamp too (its files may be gone).
-    const maxTsMs = maxOf(ledger.maxTsMs, maxTimestampMs(read.partials, config))
-    const watermarkMs =
-      (config.detect.watermark === 'clock' ? startedAt : (maxTsMs ?? startedAt)) - config.detect.allowedLatenessMs
-    const starts = new Set<number>(affectedWindowStarts(oldPartials, read.partials, k, window))
-    if (options.full === true) for (const p of oldPartials) starts.add(p.windowStartMs)
-    for (const s of closedSince(window, ledger.watermarkMs, watermarkMs, maxTsMs)) starts.add(s)
-    if (options.fromMs !== undefined && options.toMs !== undefined) {
-      for (const s of windowStartsBetween(window, options.fromMs, options.toMs)) starts.add(s)
-    }
-    // Retention: windows starting before the cutoff are frozen (never recomputed) and their partitions dropped.
-    const cutoffMs = config.output.retentionDays > 0 ? watermarkMs - config.output.retentionDays * 86_400_000 : null
-    if (cutoffMs !== null) for (const s of [...starts]) if (s < cutoffMs) starts.delete(s)
-    const readStarts = new Set(starts)
-    for (const s of starts) {
-      let b = s
-      for (let j = 0; j < k; j++) {
-        b = previousWindowStart(window, b)
-        readStarts.add(b)
-      }
-    }
-
-    // Re-merge those windows from all current partials (never subtract: statistics.md §1.6).
-    const stored =
-      readStarts.size === 0
-        ? []
-        : await readStoredPartials(
-            ledgerPartialsFiles(
-              root,
-              // Only files whose partials hold one of these windows (all files when the span is unknown).
-              entriesTouching(
-                filePlan.unchanged.map((f) => ({
-                  path: f.path,
-                  fingerprint: f.fingerprint ?? '',
-                  windows: f.previous?.windows ?? null,
-                })),
-                [...readStarts],
-              ),
+  // Re-merge those windows from all current partials (never subtract: statistics.md §1.6).
+  const stored =
+    readStarts.size === 0
+      ? []
+      : await readStoredPartials(
+          ledgerPartialsFiles(
+            root,
+            // Only files whose partials hold one of these windows (all files when the span is unknown).
+            entriesTouching(
+              filePlan.unchanged.map((f) => ({
+                path: f.path,
+                fingerprint: f.fingerprint ?? '',
+                windows: f.previous?.windows ?? null,
+              })),
+              [...readStarts],
             ),
-            { windowStarts: [...readStarts], connection },
-          )
-    const fresh = read.partials.filter((p) => readStarts.has(p.windowStartMs))
-    const states: MergedState[] = mergePartials([...stored, ...fresh])
-    lap('partials merged', { states: states.length })
-    await nextTurn()
-    const current = states.filter((s) => starts.has(s.windowStartMs))
-    const fits = fitRows(current, { config, window, watermarkMs, runId, computedAtMs: startedAt })
-    lap('fitted', { fits: fits.length })
-    await nextTurn()
-    // The closed windows with data, i.e. the fits marked closed (fitRows skips empty states).
-    const targets = current
-      .filter((s) => s.moments.n > 0 && windowEndOf(window, s.windowStartMs) <= watermarkMs)
-      .map((s) => ({ id: s.id, key: s.key, windowStartMs: s.windowStartMs }))
-    const shifts = shiftRows(targets, states, { config, window, runId })
-    lap('tested', { shifts: shifts.length })
-    signal?.throwIfAborted()
+          ),
+          { windowStarts: [...readStarts], connection },
+        )
+  const fresh = read.partials.filter((p) => readStarts.has(p.windowStartMs))
+  const states: MergedState[] = mergePartials([...stored, ...fresh])
+  lap('partials merged', { states: states.length })
+  const current = states.filter((s) => starts.has(s.windowStartMs))
+  const fits = fitRows(current, { config, window, watermarkMs, runId, computedAtMs: startedAt })
+  lap('fitted', { fits: fits.length })
+  // The closed windows with data, i.e. the fits marked closed (fitRows skips empty states).
+  const targets = current
+    .filter((s) => s.moments.n > 0 && windowEndOf(window, s.windowStartMs) <= watermarkMs)
+    .map((s) => ({ id: s.id, key: s.key, windowStartMs: s.windowStartMs }))
+  const shifts = shiftRows(targets, states, { config, window, runId })
+  lap('tested', { shifts: shifts.length })
+  signal?.throwIfAborted()
 
-    await partialsStored()
-    lap('partials stored', { files: toRead.length })
+  // Stage the digests, then the tables, publish, commit.
+  const tables = { fits: path.join(root, 'fits'), shifts: path.join(root, 'shifts'), runs: path.join(root, 'runs') }
+  const rowsRead = read.stats.reduce((a, s) => a + s.rows, 0)
+  const rowsSkipped = read.stats.reduce((a, s) => a + s.skipped, 0)
+  const stage = await stageDigests({
+    job: config.job,
+    runId,
+    keyColumns: config.source.keys,
+    xUnit: config.window.xUnit,
+    timeZone: config.window.timeZone,
+    rows: shifts,
+    root,
+    webhooks: config.notify.webhooks,
+    cooldownWindows: config.notify.cooldownWindows,
+    window,
+    nowMs: startedAt,
+  })
+  const queued = stage.staged.filter((s) => s.enqueue?.kind === 'queued').length
+  lap('digests staged')
+  const summaryOf = (endedAt: number, sent: number, pending: number): RunSummary => ({
+    run_id: runId,
+    job: config.job,
+    status: 'ok',
+    error: null,
+    started_at: new Date(startedAt).toISOString(),
+    ended_at: new Date(endedAt).toISOString(),
+    duration_ms: endedAt - startedAt,
+    files: {
+      new: filePlan.new.length,
+      changed: filePlan.changed.length,
+      deleted: filePlan.deleted.length,
+      skipped: filePlan.unchanged.length,
+      read: toRead.length,
+      ignored: discovery.ignored.length,
+    },
+    rows: { read: rowsRead, skipped: rowsSkipped },
+    series: new Set(current.map((s) => s.id)).size,
+    windows: {
+      total: fits.length,
+      open: fits.filter((f) => f.window_state === 'open').length,
+      remerged: current.length,
+    },
+    verdicts: verdictCounts(shifts),
+    shifts: shifts.filter((s) => s.verdict === 'shift').length,
+    notices: { sent, pending },
+    output: { root, ...tables },
+  })
 
-    // Stage the digests, then the tables, publish, commit.
-    const tables = { fits: path.join(root, 'fits'), shifts: path.join(root, 'shifts'), runs: path.join(root, 'runs') }
-    const rowsRead = read.stats.reduce((a, s) => a + s.rows, 0)
-    const rowsSkipped = read.stats.reduce((a, s) => a + s.skipped, 0)
-    const stage = await stageDigests({
-      job: config.job,
-      runId,
-      keyColumns: config.source.keys,
-      xUnit: config.window.xUnit,
-      timeZone: config.window.timeZone,
-      rows: shifts,
-      root,
-      webhooks: config.notify.webhooks,
-      cooldownWindows: config.notify.cooldownWindows,
-      window,
-      nowMs: startedAt,
-    })
-    const queued = stage.staged.filter((s) => s.enqueue?.kind === 'queued').length
-    lap('digests staged')
-    const summaryOf = (endedAt: number, sent: number, pending: number): RunSummary => ({
-      run_id: runId,
-      job: config.job,
-      status: 'ok',
-      error: null,
-      started_at: new Date(startedAt).toISOString(),
-      ended_at: new Date(endedAt).toISOString(),
-      duration_ms: endedAt - startedAt,
-      files: {
-        new: filePlan.new.length,
-        changed: filePlan.changed.length,
-        deleted: filePlan.deleted.length,
-        skipped: filePlan.unchanged.length,
-        read: toRead.length,
-        ignored: discovery.ignored.length,
-      },
-      rows: { read: rowsRead, skipped: rowsSkipped },
-      series: new Set(current.map((s) => s.id)).size,
-      windows: {
-        total: fits.length,
-        open: fits.filter((f) => f.window_state === 'open').length,
-        remerged: current.length,
-      },
-      verdicts: verdictCounts(shifts),
-      shifts: shifts.filter((s) => s.verdict === 'shift').length,
-      notices: { sent, pending },
-      output: { root, ...tables },
-    })
-
-    // The three tables are staged at once, each on its own connection: DuckDB encodes one while this
-    // thread gathers the next. All settle before any error is thrown.
-    const staging = await createStaging(root, runId)
-    const write = { keyColumns: config.source.keys, compression: config.output.compression }
-    const replace = [...starts]
-    const [fitsWritten, shiftsWritten, runsWritten] = await Promise.allSettled([
-      replaceWindows('fits', fits, {
+  // The three tables are staged at once, each on its own connection: DuckDB encodes one while this
+  // thread gathers the next. All settle before any error is thrown.
+  const staging = await createStaging(root, runId)
+  const write = { keyColumns: config.source.keys, compression: config.output.compression }
+  const replace = [...starts]
+  const [fitsWritten, shiftsWritten, runsWritten] = await Promise.allSettled([
+    replaceWindows('fits', fits, {
+      ...write,
+      connection,
+      dir: tables.fits,
+      stagingDir: path.join(staging, 'fits'),
+      replaceWindowStarts: replace,
+    }),
+    connect().then((c) =>
+      replaceWindows('shifts', shifts, {
         ...write,
-        connection,
-        dir: tables.fits,
-        stagingDir: path.join(staging, 'fits'),
+        connection: c,
+        dir: tables.shifts,
+        stagingDir: path.join(staging, 'shifts'),
         replaceWindowStarts: replace,
       }),
-      connect().then((c) =>
-        replaceWindows('shifts', shifts, {
-          ...write,
-          connection: c,
-          dir: tables.shifts,
-          stagingDir: path.join(staging, 'shifts'),
-          replaceWindowStarts: replace,
-        }),
-      ),
-      // Merged into the day's runs/ partition: earlier runs' rows of that day stay.
-      connect().then((c) =>
-        replacePartitions('runs', [runRowOf(summaryOf(deps.now(), 0, queued))], {
-          ...write,
-          connection: c,
-          dir: tables.runs,
-          stagingDir: path.join(staging, 'runs'),
-        }),
-      ),
-    ])
-    const remove: string[] = []
-    for (const [table, r] of [
-      ['fits', fitsWritten],
-      ['shifts', shiftsWritten],
-      ['runs', runsWritten],
-    ] as const) {
-      if (r.status === 'rejected') throw r.reason
-      if ('removed' in r.value) for (const p of r.value.removed) remove.push(`${table}/${p}/${partitionFileName}`)
-    }
-    if (options.full === true) {
-      for (const table of ['fits', 'shifts'] as const) {
-        for (const f of await listTableFiles(table, tables[table])) {
-          remove.push(path.relative(root, f).split(path.sep).join('/'))
-        }
-      }
-    }
-    if (cutoffMs !== null) {
-      const cutoffDate = new Date(cutoffMs).toISOString().slice(0, 10)
-      for (const table of ['fits', 'shifts', 'runs'] as const) {
-        for (const f of await listTableFiles(table, tables[table])) {
-          const date = /=(\d{4}-\d{2}-\d{2})$/.exec(path.basename(path.dirname(f)))?.[1]
-          if (date !== undefined && date < cutoffDate) remove.push(path.relative(root, f).split(path.sep).join('/'))
-        }
-      }
-    }
-    signal?.throwIfAborted()
-    lap('tables staged')
-    await publish(staging, root, { remove })
-    // A rerun that changed no entry commits the committed entries as they are (the ledger reuses their file).
-    const entries = entriesUnchanged(filePlan, committed.files)
-      ? committed.files
-      : ledgerAfter(filePlan, runId, windowSpans(read.partials))
-    await commitLedger(root, runId, entries, { maxTsMs, watermarkMs }, committed)
-    lap('published and committed')
-    await discardStaging(staging)
-    // Partials of replaced and deleted files go now; a run that replaced nothing has nothing to collect.
-    if (options.full === true || filePlan.changed.length > 0 || filePlan.deleted.length > 0) {
-      await gcPartials(root, { files: entries })
-    }
-    log.info({ files: toRead.length, rows: rowsRead, fits: fits.length, shifts: shifts.length }, 'run committed')
-
-    // Deliver what waits in the outbox (this run's digest and any left by earlier runs).
-    let sent = 0
-    let pending = queued
-    if (options.noDeliver !== true && config.notify.webhooks.length > 0) {
-      const flushed = await flushOutbox(
-        root,
-        { webhooks: config.notify.webhooks, maxAgeHours: config.notify.maxAgeHours },
-        { log, ...(deps.fetch ? { fetch: deps.fetch } : {}), ...(signal ? { signal } : {}) },
-      )
-      sent = flushed.sent
-      pending = flushed.pending
-      const summary = summaryOf(deps.now(), sent, pending)
-      const undelivered = undeliveredError(flushed)
-      if (undelivered !== null) {
-        log.error({ pending, runSummary: summary.files }, 'digests left undelivered; results are committed')
-        throw undelivered
-      }
-      return summary
-    }
-    return summaryOf(deps.now(), sent, pending)
+    ),
+    // Merged into the day's runs/ partition: earlier runs' rows of that day stay.
+    connect().then((c) =>
+      replacePartitions('runs', [runRowOf(summaryOf(deps.now(), 0, queued))], {
+        ...write,
+        connection: c,
+        dir: tables.runs,
+        stagingDir: path.join(staging, 'runs'),
+      }),
+    ),
+  ])
+  const remove: string[] = []
+  for (const [table, r] of [
+    ['fits', fitsWritten],
+    ['shifts', shiftsWritten],
+    ['runs', runsWritten],
+  ] as const) {
+    if (r.status === 'rejected') throw r.reason
+    if ('removed' in r.value) for (const p of r.value.removed) remove.push(`${table}/${p}/${partitionFileName}`)
   }
+  if (options.full === true) {
+    for (const table of ['fits', 'shifts'] as const) {
+      for (const f of await listTableFiles(table, tables[table])) {
+        remove.push(path.relative(root, f).split(path.sep).join('/'))
+      }
+    }
+  }
+  if (cutoffMs !== null) {
+    const cutoffDate = new Date(cutoffMs).toISOString().slice(0, 10)
+    for (const table of ['fits', 'shifts', 'runs'] as const) {
+      for (const f of await listTableFiles(table, tables[table])) {
+        const date = /=(\d{4}-\d{2}-\d{2})$/.exec(path.basename(path.dirname(f)))?.[1]
+        if (date !== undefined && date < cutoffDate) remove.push(path.relative(root, f).split(path.sep).join('/'))
+      }
+    }
+  }
+  signal?.throwIfAborted()
+  lap('tables staged')
+  await publish(staging, root, { remove })
+  // A rerun that changed no entry commits the committed entries as they are (the ledger reuses their file).
+  const entries = entriesUnchanged(filePlan, committed.files)
+    ? committed.files
+    : ledgerAfter(filePlan, runId, windowSpans(read.partials))
+  await commitLedger(root, runId, entries, { maxTsMs, watermarkMs }, committed)
+  lap('published and committed')
+  await discardStaging(staging)
+  // Partials of replaced and deleted files go now; a run that replaced nothing has nothing to collect.
+  if (options.full === true || filePlan.changed.length > 0 || filePlan.deleted.length > 0) {
+    await gcPartials(root, { files: entries })
+  }
+  log.info({ files: toRead.length, rows: rowsRead, fits: fits.length, shifts: shifts.length }, 'run committed')
+
+  // Deliver what waits in the outbox (this run's digest and any left by earlier runs).
+  let sent = 0
+  let pending = queued
+  if (options.noDeliver !== true && config.notify.webhooks.length > 0) {
+    const flushed = await flushOutbox(
+      root,
+      { webhooks: config.notify.webhooks, maxAgeHours: config.notify.maxAgeHours },
+      { log, ...(deps.fetch ? { fetch: deps.fetch } : {}), ...(signal ? { signal } : {}) },
+    )
+    sent = flushed.sent
+    pending = flushed.pending
+    const summary = summaryOf(deps.now(), sent, pending)
+    const undelivered = undeliveredError(flushed)
+    if (undelivered !== null) {
+      log.error({ pending, runSummary: summary.files }, 'digests left undelivered; results are committed')
+      throw undelivered
+    }
+    return summary
+  }
+  return summaryOf(deps.now(), sent, pending)
 }
 
 /** The file plan; `--full` treats every committed file as deleted and every discovered one as new. */
@@ -524,11 +498,6 @@ function windowSpans(partials: readonly PartialMoments[]): Map<string, WindowSpa
   return out
 }
 
-/** Resolves after one turn of the event loop, so I/O callbacks that are ready run (setImmediate). */
-function nextTurn(): Promise<void> {
-  return new Promise((resolve) => setImmediate(resolve))
-}
-
 /** How long a wait for the run lock may last before a listing started earlier is thrown away. */
 const staleListingMs = 1000
 
@@ -542,19 +511,19 @@ const partialsLanes = 4
 
 /**
  * Writes each file's partials (store/partials.ts `writePartials`), up to `partialsLanes` at a time on
- * connections of their own (never the run's main one, which works meanwhile): 1,000 new files took
- * 7.2 s one by one. After a failure no lane starts another
+ * their own connections: 1,000 new files took 7.2 s one by one. After a failure no lane starts another
  * file, every lane settles, and the first error is thrown; files already written are content-addressed
  * and unreferenced until the ledger commits, so the next run's GC removes them.
  */
 async function writeAllPartials(
   jobs: readonly { readonly target: string; readonly partials: readonly PartialMoments[] }[],
+  first: DuckDBConnection,
   connect: () => Promise<DuckDBConnection>,
   signal: AbortSignal | undefined,
 ): Promise<void> {
-  const lanes = Math.min(partialsLanes, jobs.length)
-  const connections: DuckDBConnection[] = []
-  for (let i = 0; i < lanes; i++) connections.push(await connect())
+  const lanes = Math.max(1, Math.min(partialsLanes, jobs.length))
+  const connections = [first]
+  for (let i = 1; i < lanes; i++) connections.push(await connect())
   let next = 0
   let failed = false
   const results = await Promise.allSettled(
