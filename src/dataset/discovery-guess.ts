@@ -2,7 +2,7 @@
  * The guess behind early discovery (early-discovery.ts): which inputs a config file names, from its text
  * alone (parse and `${ENV}` interpolation, no schema, so no zod). Runs in the discovery worker.
  */
-import { readFile } from 'node:fs/promises'
+import { readFile, stat } from 'node:fs/promises'
 import path from 'node:path'
 import { interpolateEnv, parseConfigText } from '../config/text.js'
 import type { DiscoveryInputs } from './early-discovery.js'
@@ -33,12 +33,18 @@ export function discoveryGuess(
   }
 }
 
-/** Reads `file` and guesses its discovery inputs (discoveryGuess); null when the file cannot be read or parsed. */
+/**
+ * Reads `file` and guesses its discovery inputs (discoveryGuess); null when it is not a regular file (a pipe
+ * must be left to the run's own read), or cannot be read or parsed.
+ */
 export async function guessFromConfigFile(
   file: string,
   env: Readonly<Record<string, string | undefined>>,
 ): Promise<DiscoveryInputs | null> {
   try {
+    // Only a regular file: a pipe (`--config <(envsubst < job.yaml)`, /dev/stdin) can be read once, and that
+    // read belongs to the run's own config load.
+    if (!(await stat(file)).isFile()) return null
     return discoveryGuess(parseConfigText(await readFile(file, 'utf8'), file), file, env)
   } catch {
     return null // the run's own config load reports the problem

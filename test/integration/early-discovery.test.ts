@@ -3,6 +3,7 @@
  * from a quick read of the config, and the run uses that listing only when it names exactly the validated
  * config's inputs. Real worker threads on a small invented lake, and the built CLI spawned.
  */
+import { execFileSync } from 'node:child_process'
 import { existsSync } from 'node:fs'
 import { mkdtemp, rm, writeFile } from 'node:fs/promises'
 import { tmpdir } from 'node:os'
@@ -10,6 +11,7 @@ import path from 'node:path'
 import { pathToFileURL } from 'node:url'
 import { afterAll, beforeAll, describe, expect, it } from 'vitest'
 import { discoverFiles } from '../../src/dataset/discover.js'
+import { guessFromConfigFile } from '../../src/dataset/discovery-guess.js'
 import { describeResult, hasBuiltCli, noCliReason, projectRoot, runCli } from '../helpers/cli.js'
 import { jobConfig, readOutputs, writeDay, writeJobConfig } from '../helpers/lake.js'
 
@@ -86,3 +88,37 @@ describe.skipIf(!hasBuiltCli)(`run with early discovery via the CLI (${hasBuiltC
     expect(a.shifts).toEqual(b.shifts)
   })
 })
+
+describe('guessFromConfigFile', () => {
+  it('guesses from a regular config file', async () => {
+    expect(await guessFromConfigFile(config, {})).toEqual({
+      inputs: [lake],
+      options: { format: 'auto', exclude: [path.join(base, 'out')] },
+    })
+  })
+
+  it.skipIf(process.platform === 'win32')('leaves a named pipe unread (its one read belongs to the run)', async () => {
+    const fifo = path.join(base, 'job.fifo')
+    execFileSync('mkfifo', [fifo])
+    // Reading a FIFO that nobody writes would block here until the test times out.
+    expect(await guessFromConfigFile(fifo, {})).toBeNull()
+  })
+})
+
+describe.skipIf(!hasBuiltCli || process.platform === 'win32')(
+  `run with its config in a named pipe via the CLI (${hasBuiltCli ? 'built' : noCliReason})`,
+  () => {
+    it('reads the config once, in the run: the early listing leaves the pipe alone', async () => {
+      const fifo = path.join(base, 'piped-job.fifo')
+      execFileSync('mkfifo', [fifo])
+      const text = JSON.stringify(jobConfig({ paths: [lake], root: path.join(base, 'out-piped'), job: 'piped' }))
+      const result = runCli(['run', '--config', fifo, '--json'])
+      // Opening a FIFO for writing waits for its reader; a reader that took the text first would leave the run none.
+      await writeFile(fifo, text)
+      const r = await result
+      expect(r.code, describeResult(r)).toBe(0)
+      expect(r.summary?.job).toBe('piped')
+      expect(r.summary?.files.read).toBe(3)
+    })
+  },
+)
