@@ -8,7 +8,7 @@ import path from 'node:path'
 import { z } from 'zod'
 import { ConfigError } from '../errors.js'
 import { type Config, configSchema } from './schema.js'
-import { interpolateEnv, parseConfigText } from './text.js'
+import { interpolateEnv, parseConfigText, resolveConfigPaths } from './text.js'
 
 export { parseConfigText } from './text.js'
 
@@ -71,15 +71,12 @@ export function resolveConfig(raw: unknown, file: string, options: LoadConfigOpt
       },
     )
   }
-  const base = path.dirname(file)
   const config = parsed.data
+  const resolved = resolveConfigPaths(config.source.paths, config.output.root, path.dirname(file))
   return {
     ...config,
-    source: {
-      ...config.source,
-      paths: config.source.paths.map((p) => (path.isAbsolute(p) ? p : path.resolve(base, p))),
-    },
-    output: { ...config.output, root: path.resolve(base, config.output.root) },
+    source: { ...config.source, paths: resolved.paths },
+    output: { ...config.output, root: resolved.root },
   }
 }
 

@@ -3,6 +3,7 @@
  * and interpolate `${NAME}` references. config/load.ts builds on them; the discovery worker uses them to
  * start listing a job's inputs before the CLI has loaded (dataset/early-discovery.ts).
  */
+import path from 'node:path'
 import { parse as parseYaml, YAMLParseError } from 'yaml'
 import { ConfigError } from '../errors.js'
 
@@ -60,4 +61,16 @@ function interpolate(
     return Object.fromEntries(Object.entries(value).map(([k, v]) => [k, interpolate(v, env, [...at, k], missing)]))
   }
   return value
+}
+
+/**
+ * `source.paths` and `output.root` of a config, resolved from `base` (the config file's folder) as a run uses
+ * them: absolute paths stay, relative ones are taken from `base`.
+ */
+export function resolveConfigPaths(
+  paths: readonly string[],
+  root: string,
+  base: string,
+): { readonly paths: string[]; readonly root: string } {
+  return { paths: paths.map((p) => (path.isAbsolute(p) ? p : path.resolve(base, p))), root: path.resolve(base, root) }
 }

@@ -4,7 +4,8 @@
  */
 import { readFile, stat } from 'node:fs/promises'
 import path from 'node:path'
-import { interpolateEnv, parseConfigText } from '../config/text.js'
+import { interpolateEnv, parseConfigText, resolveConfigPaths } from '../config/text.js'
+import { discoverOptionsOf } from '../pipeline/plan.js'
 import type { DiscoveryInputs } from './early-discovery.js'
 
 /**
@@ -26,10 +27,10 @@ export function discoveryGuess(
   if (!Array.isArray(paths) || paths.length === 0 || !paths.every((p) => typeof p === 'string' && p !== '')) return null
   if (typeof root !== 'string' || root === '') return null
   if (format !== 'auto' && format !== 'parquet' && format !== 'arrow') return null
-  const base = path.dirname(file)
+  const resolved = resolveConfigPaths(paths as string[], root, path.dirname(file))
   return {
-    inputs: (paths as string[]).map((p) => (path.isAbsolute(p) ? p : path.resolve(base, p))),
-    options: { format, exclude: [path.resolve(base, root)] },
+    inputs: resolved.paths,
+    options: discoverOptionsOf({ source: { format }, output: { root: resolved.root } }),
   }
 }
 

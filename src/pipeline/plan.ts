@@ -34,6 +34,9 @@ export function baselineLabel(config: Config): string {
 }
 
 /** How a run discovers its input files: the configured format, never inside the output root. */
-export function discoverOptionsOf(config: Config): DiscoverOptions {
+export function discoverOptionsOf(config: {
+  readonly source: Pick<Config['source'], 'format'>
+  readonly output: Pick<Config['output'], 'root'>
+}): DiscoverOptions {
   return { format: config.source.format, exclude: [config.output.root] }
 }

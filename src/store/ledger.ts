@@ -285,9 +285,8 @@ function fastEntries(raw: unknown): LedgerEntry[] | null {
   return out
 }
 
-/** The entries file's bytes: columns, run ids interned, no indentation; entries sorted by path. */
-function entriesText(files: readonly LedgerEntry[]): string {
-  const sorted = [...files].sort((a, b) => comparePaths(a.path, b.path))
+/** The entries file's bytes for entries already sorted by path: columns, run ids interned, no indentation. */
+function entriesText(sorted: readonly LedgerEntry[]): string {
   const runIndex = new Map<string, number>()
   const cols: EntriesColumns = {
     version: 2,
@@ -348,13 +347,14 @@ export async function commitLedger(
 ): Promise<Ledger> {
   const dir = stateDir(root)
   const file = ledgerPath(root)
+  const sorted = [...files].sort((a, b) => comparePaths(a.path, b.path))
   let entries: string
   try {
     await ensureDir(dir)
     if (previous !== undefined && previous.entriesFile !== null && files === previous.files) {
       entries = previous.entriesFile
     } else {
-      const text = entriesText(files)
+      const text = entriesText(sorted)
       entries = `entries-${sha256(text)}.json`
       await writeDurably(join(dir, entries), text)
       await fsyncDir(dir)
@@ -379,7 +379,7 @@ export async function commitLedger(
   return {
     version: ledgerVersion,
     committedRunId: runId,
-    files: [...files].sort((a, b) => comparePaths(a.path, b.path)),
+    files: sorted,
     maxTsMs: meta.maxTsMs,
     watermarkMs: meta.watermarkMs,
     entriesFile: entries,

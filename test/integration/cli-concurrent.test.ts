@@ -35,6 +35,14 @@ async function until(check: () => Promise<boolean>, timeoutMs: number): Promise<
   return false
 }
 
+/** Starts a run on `config` and pauses it (SIGSTOP) once it holds the lock (it logged "run started"). */
+async function pausedHolder(config: string): Promise<ReturnType<typeof spawnCli>> {
+  const first = spawnCli(['run', '--config', config, '--json'])
+  expect(await first.waitForLog('"run started"')).toBe(true)
+  first.child.kill('SIGSTOP')
+  return first
+}
+
 /** True once the run with `pid` waits for the lock of `root`: it keeps its candidate lock file `run.lock.<pid>-<random>.tmp` while it polls. */
 function waitingForLock(root: string, pid: number | undefined): Promise<boolean> {
   return until(
@@ -48,9 +56,7 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
   it('exits 75 and names the holder when another run holds the lock and --lock-wait is 0', async () => {
     const root = path.join(base, 'no-wait')
     const config = await writeJobConfig(path.join(base, 'no-wait.json'), { paths: [lake], root })
-    const first = spawnCli(['run', '--config', config, '--json'])
-    expect(await first.waitForLog('"run started"')).toBe(true)
-    first.child.kill('SIGSTOP')
+    const first = await pausedHolder(config)
     let second: Awaited<ReturnType<typeof runCli>>
     try {
       second = await runCli(['run', '--config', config, '--json', '--lock-wait', '0'])
@@ -74,9 +80,7 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
   it('waits with --lock-wait, then finds nothing to do', async () => {
     const root = path.join(base, 'wait')
     const config = await writeJobConfig(path.join(base, 'wait.json'), { paths: [lake], root })
-    const first = spawnCli(['run', '--config', config, '--json'])
-    expect(await first.waitForLog('"run started"')).toBe(true)
-    first.child.kill('SIGSTOP')
+    const first = await pausedHolder(config)
     const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
     try {
       expect(await waitingForLock(root, second.child.pid), 'second run never started waiting for the lock').toBe(true)
@@ -103,9 +107,7 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
     for (let day = 0; day < days; day++) await writeDay(ownLake, day)
     const root = path.join(base, 'wait-late')
     const config = await writeJobConfig(path.join(base, 'wait-late.json'), { paths: [ownLake], root })
-    const first = spawnCli(['run', '--config', config, '--json'])
-    expect(await first.waitForLog('"run started"')).toBe(true)
-    first.child.kill('SIGSTOP')
+    const first = await pausedHolder(config)
     // The waiter's entry lists the lake before it waits (early discovery); the day added below is not in it.
     const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
     try {
