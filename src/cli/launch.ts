@@ -18,6 +18,7 @@ import path from 'node:path'
 import { fileURLToPath } from 'node:url'
 import vm from 'node:vm'
 import { startEarlyDiscovery } from '../dataset/early-discovery.js'
+import { exposeGc } from '../dataset/young-gc.js'
 import { codeCacheDir, codeCacheName, commandOf, readCodeCache, writeCodeCache } from './code-cache.js'
 
 declare const __SLOPESHIFT_BUNDLE_ID__: string
@@ -33,6 +34,8 @@ type BundleFunction = (
 
 const dir = path.dirname(fileURLToPath(import.meta.url))
 const file = path.join(dir, 'cli.cjs')
+// Before the cached bundle compiles: a code cache is checked against the V8 flags it was made under.
+exposeGc()
 // `run` lists its inputs in a worker from now on, while the bundle below loads (early-discovery.ts).
 startEarlyDiscovery(process.argv.slice(2), path.join(dir, 'discover-worker.js'))
 if (process.sourceMapsEnabled) {

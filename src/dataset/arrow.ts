@@ -11,19 +11,11 @@ import { type FileHandle, open } from 'node:fs/promises'
 import { basename } from 'node:path'
 import { type Data, DataType, type RecordBatch, RecordBatchReader, type Schema, type Vector } from 'apache-arrow'
 import { DataError, NoInputError } from '../errors.js'
-import { accumulateIndexed, accumulateInt64, MomentSlots, slotClearlyValid, slotMoments } from '../kernel/accumulate.js'
+import { accumulateIndexed, accumulateInt64, MomentSlots } from '../kernel/accumulate.js'
 import { KeyValueIds } from '../kernel/key-intern.js'
-import { invalidMomentsReason } from '../kernel/moments.js'
 import { SlotIndex } from '../kernel/slot-index.js'
 import { WindowCursor } from '../kernel/window-x.js'
-import {
-  type MomentsPlan,
-  type PartialMoments,
-  type ReadStats,
-  type SeriesKey,
-  type SourceFile,
-  seriesId,
-} from '../types.js'
+import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import {
   isNumericType,
   KeyColumnReader,
@@ -37,6 +29,7 @@ import {
 } from './arrow-columns.js'
 import { hasFileMagic, type IpcBatch, IpcFileReader } from './arrow-ipc-file.js'
 import { registerArrowCodecs } from './codecs.js'
+import { slotPartials } from './slot-partials.js'
 
 /** Options of `readArrowPartials`. */
 export interface ArrowReadOptions {
@@ -544,43 +537,6 @@ class FileAccumulator {
 
   /** Partial moments of every (series, window), checked finite, sorted by series id then window start. */
   finish(): PartialMoments[] {
-    const ids = this.seriesKeys.map((key) => seriesId(key))
-    const seriesRank = ranks(ids.length, (a, b) => {
-      const ia = ids[a] as string
-      const ib = ids[b] as string
-      return ia < ib ? -1 : ia > ib ? 1 : 0
-    })
-    const starts = this.cursor.windowStartMs
-    const windowRank = ranks(starts.length, (a, b) => (starts[a] as number) - (starts[b] as number))
-    const order = this.index.slotOrder(seriesRank, windowRank)
-    const out: PartialMoments[] = new Array(order.length)
-    for (let i = 0; i < order.length; i++) {
-      const k = order[i] as number
-      const sid = this.index.seriesOfSlot[k] as number
-      const key = this.seriesKeys[sid] as SeriesKey
-      const windowStartMs = starts[this.index.windowOfSlot[k] as number] as number
-      const moments = slotMoments(this.slots, k)
-      const reason = slotClearlyValid(this.slots, k) ? null : invalidMomentsReason(moments)
-      if (reason !== null) {
-        const id = ids[sid] as string
-        throw new DataError(
-          `moments of series ${id} in window ${new Date(windowStartMs).toISOString()} from ${basename(this.file.path)} are not valid (${reason}); check the file for values beyond ±1e154`,
-          { context: { file: this.file.path, key: id } },
-        )
-      }
-      out[i] = { file: this.file.path, key, windowStartMs, moments }
-    }
-    this.slots.release()
-    return out
+    return slotPartials(this.file.path, this.slots, this.index, this.cursor, this.seriesKeys)
   }
-}
-
-/** rank[i] = position of item i when items 0 … count − 1 are sorted by `compare`. */
-function ranks(count: number, compare: (a: number, b: number) => number): Int32Array {
-  const order = Array.from({ length: count }, (_, i) => i).sort(compare)
-  const rank = new Int32Array(count)
-  order.forEach((item, r) => {
-    rank[item] = r
-  })
-  return rank
 }

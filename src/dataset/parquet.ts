@@ -24,6 +24,7 @@ import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Momen
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import { seriesId } from '../types.js'
 import { type DuckDbSession, openDuckDb } from './duckdb.js'
+import { keyCodesFold, rowStreamTicks, type StreamedGroup, streamGroupRows } from './parquet-rows.js'
 import { planTimeSlices, type RowGroupSpan } from './slices.js'
 import {
   type CalendarSpan,
@@ -51,6 +52,11 @@ export interface ReadParquetOptions {
    * `readParquetPartials`.
    */
   readonly sliceRows?: number
+  /**
+   * Lag block only: `kernel` (default) streams the rows through our kernel when x is a timestamp or an
+   * integer epoch (parquet-rows.ts); `sql` always uses the window-function query in time slices.
+   */
+  readonly lagEngine?: 'kernel' | 'sql'
 }
 
 /**
@@ -122,6 +128,29 @@ export async function readParquetPartials(
     for (const group of groupByFileKeys(files, plan)) {
       signal?.throwIfAborted()
       const x = checkColumns(group.files, plan, schemas)
+      const ticks = options.lagEngine === 'sql' ? null : rowStreamTicks(plan, x)
+      if (ticks !== null) {
+        const enums = await keyEnums(db, plan, group, scan++, signal)
+        const dictionaries = await enumValues(db, enums)
+        if (keyCodesFold(dictionaries)) {
+          let got: StreamedGroup
+          try {
+            got = await streamGroupRows(db, plan, group, x, ticks, enums, dictionaries, signal)
+          } catch (err) {
+            throw scanError(err, group.files, signal)
+          }
+          scans++
+          got.stats.forEach((st, i) => {
+            const total = stats.get(st.file)
+            if (total !== undefined) {
+              total.rows += st.rows
+              total.skipped += st.skipped
+            }
+            for (const r of runsOf(got.partials[i] ?? [])) runs.push(r)
+          })
+          continue
+        }
+      }
       const paths = group.files.map((f) => f.path)
       const map = plan.window.kind === 'calendar' ? await calendarMap(db, paths, plan, x) : null
       const enums = lag || plan.weight !== null ? await keyEnums(db, plan, group, scan++, signal) : []
@@ -504,22 +533,54 @@ async function runScan(
   try {
     return await db.run(sql)
   } catch (err) {
-    signal?.throwIfAborted()
-    const msg = err instanceof Error ? err.message : String(err)
-    if (/^(Binder|Parser|Catalog) Error/.test(msg)) throw err
-    const file = files.find((f) => msg.includes(f.path))?.path ?? files.map((f) => f.path).join(', ')
-    if (/^Out of Memory Error/.test(msg)) {
-      // Not the file's fault: the engine's memory limit is too small for this scan (it already spilled what it could).
-      throw new ConfigError(
-        `reading ${file} ran out of engine memory (${msg.split('\n')[0]}); raise engine.memoryLimit or lower engine.threads in the config`,
-        { context: { file }, cause: err },
-      )
-    }
-    throw new DataError(
-      `reading ${file} failed (${msg.split('\n')[0]}); replace the file or remove it from the dataset`,
+    throw scanError(err, files, signal)
+  }
+}
+
+/**
+ * The error to throw for a failed scan of `files`: the abort reason when aborted; SQL errors as they are
+ * (a bug of ours); out of engine memory as a ConfigError; anything else as a DataError naming the file.
+ */
+function scanError(err: unknown, files: readonly SourceFile[], signal: AbortSignal | undefined): unknown {
+  signal?.throwIfAborted()
+  const msg = err instanceof Error ? err.message : String(err)
+  if (/^(Binder|Parser|Catalog) Error/.test(msg)) return err
+  const file = files.find((f) => msg.includes(f.path))?.path ?? files.map((f) => f.path).join(', ')
+  if (/^Out of Memory Error/.test(msg)) {
+    // Not the file's fault: the engine's memory limit is too small for this scan (it already spilled what it could).
+    return new ConfigError(
+      `reading ${file} ran out of engine memory (${msg.split('\n')[0]}); raise engine.memoryLimit or lower engine.threads in the config`,
       { context: { file }, cause: err },
     )
   }
+  return new DataError(
+    `reading ${file} failed (${msg.split('\n')[0]}); replace the file or remove it from the dataset`,
+    { context: { file }, cause: err },
+  )
+}
+
+/** Runs (file, series) of one file's partials, which come sorted by series id, then window start. */
+function runsOf(partials: readonly PartialMoments[]): SeriesRun[] {
+  const runs: SeriesRun[] = []
+  let run: SeriesRun | null = null
+  for (const p of partials) {
+    if (run === null || run.key !== p.key) {
+      run = { file: p.file, key: p.key, id: seriesId(p.key), partials: [] }
+      runs.push(run)
+    }
+    run.partials.push(p)
+  }
+  return runs
+}
+
+/** The values of each ENUM type in `names`, in code order. */
+async function enumValues(db: DuckDbSession, names: readonly string[]): Promise<string[][]> {
+  const out: string[][] = []
+  for (const name of names) {
+    const r = await db.run(`SELECT CAST(unnest(enum_range(NULL::${quoteIdent(name)})) AS VARCHAR)`)
+    out.push(((await r.getRowsJS()) as unknown[][]).map((row) => String(row[0])))
+  }
+  return out
 }
 
 /** The partials of one (file, series), windows ascending. */

@@ -1,5 +1,6 @@
 /** Relative-tolerance assertions for numeric check values (statistics.md §8 "Tolerances for tests"). */
 import { expect } from 'vitest'
+import { type LagBlock, lagDoubleFields, type Moments } from '../../src/kernel/moments.js'
 
 /** Asserts |actual − expected| ≤ tol·|expected| (absolute tol when expected is 0). */
 export function expectRel(actual: number | null | undefined, expected: number, tol: number, label = ''): void {
@@ -41,4 +42,34 @@ export function expectPrinted(actual: number | null | undefined, printed: string
     Math.abs(a - v),
     `${label}: got ${a}, expected ${printed} (allowed ±${allowed.toExponential(2)})`,
   ).toBeLessThanOrEqual(allowed)
+}
+
+/**
+ * Asserts two moments agree: counts, `skipped`, lag pairs and `inOrder` exactly; every double to within
+ * `tol`·max(1, |expected|).
+ */
+export function expectSameMoments(a: Moments, b: Moments, tol: number, label = ''): void {
+  expect(a.n, `${label} n`).toBe(b.n)
+  expect(a.skipped, `${label} skipped`).toBe(b.skipped)
+  for (const f of ['wSum', 'xMean', 'yMean', 'sxx', 'syy', 'sxy', 'xMin', 'xMax'] as const) {
+    expect(Math.abs(a[f] - b[f]), `${label} ${f}: ${a[f]} vs ${b[f]}`).toBeLessThanOrEqual(
+      tol * Math.max(1, Math.abs(b[f])),
+    )
+  }
+  expect(a.lag === null, `${label} lag block present`).toBe(b.lag === null)
+  if (a.lag !== null && b.lag !== null) expectSameLag(a.lag, b.lag, tol, label)
+}
+
+function expectSameLag(a: LagBlock, b: LagBlock, tol: number, label: string): void {
+  expect(a.pairs, `${label} pairs`).toBe(b.pairs)
+  expect(a.inOrder, `${label} inOrder`).toBe(b.inOrder)
+  for (const f of lagDoubleFields) {
+    if (Number.isNaN(b[f])) {
+      expect(a[f], `${label} lag ${f}`).toBeNaN()
+      continue
+    }
+    expect(Math.abs(a[f] - b[f]), `${label} lag ${f}: ${a[f]} vs ${b[f]}`).toBeLessThanOrEqual(
+      tol * Math.max(1, Math.abs(b[f])),
+    )
+  }
 }

@@ -3,12 +3,12 @@ import { tmpdir } from 'node:os'
 import { join } from 'node:path'
 import { afterAll, beforeAll, describe, expect, it } from 'vitest'
 import { readParquetPartials } from '../../src/dataset/parquet.js'
-import { type LagBlock, lagDoubleFields, type Moments, mergeMoments } from '../../src/kernel/moments.js'
+import { type Moments, mergeMoments } from '../../src/kernel/moments.js'
 import { parseWindow, type WindowSpec } from '../../src/kernel/window.js'
 import type { MomentsPlan, PartialMoments, SourceFile } from '../../src/types.js'
 import { seriesId } from '../../src/types.js'
 import { A, B, C, momentsOf, startA } from '../fixtures/worked-example.js'
-import { expectPrinted, expectRel } from '../helpers/close.js'
+import { expectPrinted, expectRel, expectSameMoments } from '../helpers/close.js'
 import { ParquetWriter, type RawType, type RawValue, type WriteOptions } from '../helpers/parquet-write.js'
 
 const twoHours = parseWindow('2h') as WindowSpec
@@ -80,24 +80,6 @@ function expect81(partials: readonly PartialMoments[], tol = 1e-10): void {
 }
 
 /** Every field of two moments (and lag blocks) to `tol` relative (absolute below magnitude 1). */
-function expectSameMoments(a: Moments, b: Moments, tol: number): void {
-  expect(a.n).toBe(b.n)
-  expect(a.skipped).toBe(b.skipped)
-  for (const f of ['wSum', 'xMean', 'yMean', 'sxx', 'syy', 'sxy', 'xMin', 'xMax'] as const) {
-    expect(Math.abs(a[f] - b[f]), `${f}: ${a[f]} vs ${b[f]}`).toBeLessThanOrEqual(tol * Math.max(1, Math.abs(b[f])))
-  }
-  expect(a.lag === null).toBe(b.lag === null)
-  if (a.lag !== null && b.lag !== null) expectSameLag(a.lag, b.lag, tol)
-}
-
-function expectSameLag(a: LagBlock, b: LagBlock, tol: number): void {
-  expect(a.pairs).toBe(b.pairs)
-  expect(a.inOrder).toBe(b.inOrder)
-  for (const f of lagDoubleFields) {
-    expect(Math.abs(a[f] - b[f]), `lag ${f}: ${a[f]} vs ${b[f]}`).toBeLessThanOrEqual(tol * Math.max(1, Math.abs(b[f])))
-  }
-}
-
 let dir: string
 let writer: ParquetWriter
 

@@ -87,8 +87,12 @@ async function both(
   plan: MomentsPlan,
   sliceRows: number,
 ): Promise<[ParquetPartials, ParquetPartials]> {
-  const sliced = await readParquetPartials(files, plan, { threads: 1, sliceRows })
-  const whole = await readParquetPartials(files, plan, { threads: 1, sliceRows: Number.POSITIVE_INFINITY })
+  const sliced = await readParquetPartials(files, plan, { threads: 1, sliceRows, lagEngine: 'sql' })
+  const whole = await readParquetPartials(files, plan, {
+    threads: 1,
+    sliceRows: Number.POSITIVE_INFINITY,
+    lagEngine: 'sql',
+  })
   return [sliced, whole]
 }
 
