@@ -108,39 +108,47 @@ export async function streamGroupRows(
   let chunks = 0
   let rows = 0
   let reported = 0
-  for (;;) {
-    signal?.throwIfAborted()
-    const chunk: DuckDBDataChunk | null = await result.fetchChunk()
-    if (chunk === null || chunk.rowCount === 0) break
-    const length = chunk.rowCount
-    const fileCol = valuesOf(chunk.getColumnVector(0), Int32Array, length)
-    const codes: Int32Array[] = []
-    for (let j = 0; j < keyCount; j++) codes.push(valuesOf(chunk.getColumnVector(1 + j), Int32Array, length))
-    const t = valuesOf(chunk.getColumnVector(1 + keyCount), BigInt64Array, length)
-    const y = valuesOf(chunk.getColumnVector(2 + keyCount), Float64Array, length)
-    // A chunk may hold the end of one file and the start of the next: split it at file changes.
-    let from = 0
-    while (from < length) {
-      const index = fileOf(fileCol[from] as number)
-      let to = from + 1
-      while (to < length && fileOf(fileCol[to] as number) === index) to++
-      if (acc === null || acc.fileIndex !== index) {
-        if (acc !== null) done[acc.fileIndex] = acc.finish()
-        const file = group.files[index]
-        if (file === undefined) throw new Error(`DuckDB returned an unknown file index ${index}`)
-        acc = new CodedRowsAccumulator(file, index, plan, ticks, group.fileKeys, dictionaries)
+  // The next chunk is asked for before this one is added up: DuckDB then decodes while the kernel runs.
+  let pending: Promise<DuckDBDataChunk | null> = result.fetchChunk()
+  try {
+    for (;;) {
+      signal?.throwIfAborted()
+      const chunk = await pending
+      if (chunk === null || chunk.rowCount === 0) break
+      pending = result.fetchChunk()
+      const length = chunk.rowCount
+      const fileCol = valuesOf(chunk.getColumnVector(0), Int32Array, length)
+      const codes: Int32Array[] = []
+      for (let j = 0; j < keyCount; j++) codes.push(valuesOf(chunk.getColumnVector(1 + j), Int32Array, length))
+      const t = valuesOf(chunk.getColumnVector(1 + keyCount), BigInt64Array, length)
+      const y = valuesOf(chunk.getColumnVector(2 + keyCount), Float64Array, length)
+      // A chunk may hold the end of one file and the start of the next: split it at file changes.
+      let from = 0
+      while (from < length) {
+        const index = fileOf(fileCol[from] as number)
+        let to = from + 1
+        while (to < length && fileOf(fileCol[to] as number) === index) to++
+        if (acc === null || acc.fileIndex !== index) {
+          if (acc !== null) done[acc.fileIndex] = acc.finish()
+          const file = group.files[index]
+          if (file === undefined) throw new Error(`DuckDB returned an unknown file index ${index}`)
+          acc = new CodedRowsAccumulator(file, index, plan, ticks, group.fileKeys, dictionaries)
+        }
+        const st = stats[index] as ReadStats
+        st.skipped += acc.add(from, to, fileCol, codes, t, y)
+        st.rows += to - from
+        from = to
       }
-      const st = stats[index] as ReadStats
-      st.skipped += acc.add(from, to, fileCol, codes, t, y)
-      st.rows += to - from
-      from = to
+      rows += length
+      if (rows - reported >= 1_000_000) {
+        reported = rows
+        onRows?.(rows)
+      }
+      if (++chunks % collectEvery === 0) collect()
     }
-    rows += length
-    if (rows - reported >= 1_000_000) {
-      reported = rows
-      onRows?.(rows)
-    }
-    if (++chunks % collectEvery === 0) collect()
+  } finally {
+    // a fetch still in flight after an error or an abort settles unobserved
+    pending.catch(() => undefined)
   }
   if (acc !== null) done[acc.fileIndex] = acc.finish()
   return { partials: done, stats }

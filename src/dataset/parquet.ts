@@ -57,6 +57,8 @@ export interface ReadParquetOptions {
    * integer epoch (parquet-rows.ts); `sql` always uses the window-function query in time slices.
    */
   readonly lagEngine?: 'kernel' | 'sql'
+  /** Called with the running total of rows read while rows stream through the kernel (about every million rows). */
+  readonly onRows?: (rows: number) => void
 }
 
 /**
@@ -135,7 +137,10 @@ export async function readParquetPartials(
         if (keyCodesFold(dictionaries)) {
           let got: StreamedGroup
           try {
-            got = await streamGroupRows(db, plan, group, x, ticks, enums, dictionaries, signal)
+            const before = rowsSoFar(stats)
+            got = await streamGroupRows(db, plan, group, x, ticks, enums, dictionaries, signal, (n) =>
+              options.onRows?.(before + n),
+            )
           } catch (err) {
             throw scanError(err, group.files, signal)
           }
@@ -557,6 +562,13 @@ function scanError(err: unknown, files: readonly SourceFile[], signal: AbortSign
     `reading ${file} failed (${msg.split('\n')[0]}); replace the file or remove it from the dataset`,
     { context: { file }, cause: err },
   )
+}
+
+/** Rows counted so far over all files. */
+function rowsSoFar(stats: ReadonlyMap<string, ReadStats>): number {
+  let n = 0
+  for (const s of stats.values()) n += s.rows
+  return n
 }
 
 /** Runs (file, series) of one file's partials, which come sorted by series id, then window start. */

@@ -41,6 +41,7 @@ export async function readPartials(
       memoryLimit: options.memoryLimit,
       ...(options.tempDirectory === undefined ? {} : { tempDirectory: options.tempDirectory }),
       ...(options.signal ? { signal: options.signal } : {}),
+      ...(options.onRows ? { onRows: options.onRows } : {}),
     })
     partials.push(...r.partials)
     stats.push(...r.stats)
