@@ -232,7 +232,8 @@ class CodedRowsAccumulator {
     this.dictionaries = dictionaries
     if (!keyCodesFold(dictionaries)) throw new RangeError('key codes do not fold into one number; read with SQL')
     this.radix = dictionaries.map((d) => d.length + 1)
-    this.seriesOfCode = new Int32Array((dictionaries[0]?.length ?? 0) + 1).fill(-1)
+    // grown on demand: a file of a set with a million keys may hold only a few of them
+    this.seriesOfCode = new Int32Array(Math.min((dictionaries[0]?.length ?? 0) + 1, 1024)).fill(-1)
   }
 
   /**
@@ -283,11 +284,12 @@ class CodedRowsAccumulator {
     }
     if (codes.length === 1) {
       const c = codes[0] as Int32Array
-      const map = this.seriesOfCode
+      let map = this.seriesOfCode
       for (let i = from; i < to; i++) {
         const v = (c[i] as number) + 1
-        let sid = map[v] as number
+        let sid = v < map.length ? (map[v] as number) : -1
         if (sid < 0) {
+          if (v >= map.length) map = this.growCodes(v + 1)
           sid = this.seriesIdOf([v - 1])
           map[v] = sid
         }
@@ -307,6 +309,16 @@ class CodedRowsAccumulator {
       }
       out[i - from] = sid
     }
+  }
+
+  /** Makes room for codes below `size` in `seriesOfCode` (doubling) and returns it. */
+  private growCodes(size: number): Int32Array {
+    let capacity = this.seriesOfCode.length * 2
+    while (capacity < size) capacity *= 2
+    const next = new Int32Array(capacity).fill(-1)
+    next.set(this.seriesOfCode)
+    this.seriesOfCode = next
+    return next
   }
 
   /** Registers the series of the given codes (−1 = null) of the coded key columns. */

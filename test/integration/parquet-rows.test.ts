@@ -176,6 +176,17 @@ describe('readParquetPartials with the lag block through the kernel', () => {
     expect(new Set(got.partials.map((p) => p.key[0]))).toEqual(new Set(['eu', 'us']))
   })
 
+  it('gives the SQL result for thousands of keys, beyond the first size of its key map', async () => {
+    const rnd = mulberry32(37)
+    const rows: RawValue[][] = []
+    for (let k = 0; k < 3000; k++) {
+      for (let j = 0; j < 4; j++) rows.push(['east', `cmp-${k}`, day0 + j * 60_000 + k, 3 + j * rnd()])
+    }
+    const f = await write('many-keys.parquet', rows, tsSelect('TIMESTAMP'))
+    const got = await expectKernelMatchesSql([f], planFor(hourly))
+    expect(got.partials.length).toBe(3000)
+  })
+
   it('is bit-identical whatever the engine thread count (one pass in file order)', async () => {
     const f = await write('threads.parquet', feed(day0, 12, 3000, 29, true), tsSelect('TIMESTAMP'))
     const one = await readParquetPartials([f], planFor(hourly), { threads: 1 })
