@@ -19,7 +19,7 @@
  * `in_order` true by construction and hide unsorted files.
  */
 import type { DuckDBDataChunk, DuckDBMaterializedResult } from '@duckdb/node-api'
-import { ConfigError, DataError, NoInputError } from '../errors.js'
+import { ConfigError, DataError, NoInputError, SlopeshiftError } from '../errors.js'
 import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Moments } from '../kernel/moments.js'
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import { seriesId } from '../types.js'
@@ -130,9 +130,10 @@ export async function readParquetPartials(
     for (const group of groupByFileKeys(files, plan)) {
       signal?.throwIfAborted()
       const x = checkColumns(group.files, plan, schemas)
+      // ENUM codes for the key columns: the row stream's series ids, the SQL lag sort's and weighted join's keys
+      const enums = lag || plan.weight !== null ? await keyEnums(db, plan, group, scan++, signal) : []
       const ticks = options.lagEngine === 'sql' ? null : rowStreamTicks(plan, x)
       if (ticks !== null) {
-        const enums = await keyEnums(db, plan, group, scan++, signal)
         const dictionaries = await enumValues(db, enums)
         if (keyCodesFold(dictionaries)) {
           let got: StreamedGroup
@@ -158,7 +159,6 @@ export async function readParquetPartials(
       }
       const paths = group.files.map((f) => f.path)
       const map = plan.window.kind === 'calendar' ? await calendarMap(db, paths, plan, x) : null
-      const enums = lag || plan.weight !== null ? await keyEnums(db, plan, group, scan++, signal) : []
       const source: SqlSource & { kind: 'parquet' } = {
         kind: 'parquet',
         files: paths,
@@ -548,6 +548,7 @@ async function runScan(
  */
 function scanError(err: unknown, files: readonly SourceFile[], signal: AbortSignal | undefined): unknown {
   signal?.throwIfAborted()
+  if (err instanceof SlopeshiftError) return err // already names its file (e.g. moments out of range)
   const msg = err instanceof Error ? err.message : String(err)
   if (/^(Binder|Parser|Catalog) Error/.test(msg)) return err
   const file = files.find((f) => msg.includes(f.path))?.path ?? files.map((f) => f.path).join(', ')
@@ -571,7 +572,10 @@ function rowsSoFar(stats: ReadonlyMap<string, ReadStats>): number {
   return n
 }
 
-/** Runs (file, series) of one file's partials, which come sorted by series id, then window start. */
+/**
+ * Runs (file, series) of one file's partials, which come sorted by series id, then window start, the partials
+ * of one series sharing one key array (slot-partials.ts).
+ */
 function runsOf(partials: readonly PartialMoments[]): SeriesRun[] {
   const runs: SeriesRun[] = []
   let run: SeriesRun | null = null

@@ -187,6 +187,23 @@ describe('readParquetPartials with the lag block through the kernel', () => {
     expect(got.partials.length).toBe(3000)
   })
 
+  it("names the file, series and window when a window's sums overflow, as the Arrow reader does", async () => {
+    const rows: RawValue[][] = [0, 1, 2, 3].map((j) => [
+      'west',
+      'cmp-7',
+      day0 + j * 60_000,
+      j % 2 === 0 ? 1e200 : -1e200,
+    ])
+    const f = await write('overflow.parquet', rows, tsSelect('TIMESTAMP'))
+    await expect(readParquetPartials([f], planFor(hourly), { threads: 1 })).rejects.toMatchObject({
+      code: 'SLOPESHIFT_DATA',
+      exitCode: 65,
+      message: expect.stringMatching(
+        /^moments of series \["west","cmp-7"\] in window 2026-12-01T00:00:00\.000Z from overflow\.parquet are not valid \(syy is not finite/,
+      ),
+    })
+  })
+
   it('is bit-identical whatever the engine thread count (one pass in file order)', async () => {
     const f = await write('threads.parquet', feed(day0, 12, 3000, 29, true), tsSelect('TIMESTAMP'))
     const one = await readParquetPartials([f], planFor(hourly), { threads: 1 })
