@@ -14,9 +14,11 @@
  * `collectEvery` chunks (young-gc.ts; without it the peak is ~100 MB higher, nothing else changes).
  */
 import type { DuckDBDataChunk, DuckDBVector } from '@duckdb/node-api'
+import { DataError } from '../errors.js'
 import { accumulateInt64, MomentSlots } from '../kernel/accumulate.js'
 import { SlotIndex } from '../kernel/slot-index.js'
 import { type TickUnit, WindowCursor } from '../kernel/window-x.js'
+import type { WordPairIds } from '../kernel/word-pair-ids.js'
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import type { DuckDbSession } from './duckdb.js'
 import { slotPartials } from './slot-partials.js'
@@ -33,6 +35,19 @@ export interface RowStreamGroup {
   readonly fileKeys: readonly string[]
 }
 
+/** Dictionary values of one key column in code order; null stands for a null key. */
+export type KeyDictionary = readonly (string | null)[]
+
+/** How the row stream turns the key columns read from the files into codes. */
+export type KeyCoding =
+  /** One ENUM type per key column (made from its distinct values); a code is the ENUM code, −1 for null. */
+  | { readonly kind: 'enum'; readonly enums: readonly string[]; readonly dictionaries: readonly KeyDictionary[] }
+  /**
+   * One key column: DuckDB's 64-bit `hash` of its text per row, which `ids` maps to the value's index in
+   * `dictionary` (cheaper for DuckDB than an ENUM cast; the hashes of the distinct values are all distinct).
+   */
+  | { readonly kind: 'hash'; readonly ids: WordPairIds; readonly dictionary: KeyDictionary }
+
 /** The ticks the kernel gets for x stored as `x`, or null when this reader cannot take it. */
 export function rowStreamTicks(plan: MomentsPlan, x: XStorage): 'ms' | 'us' | 'ns' | null {
   if (!plan.trackLag || plan.weight !== null) return null
@@ -46,8 +61,8 @@ export function rowStreamTicks(plan: MomentsPlan, x: XStorage): 'ms' | 'us' | 'n
 
 /**
  * The streaming query: per row, in file order, `file` (the index into `group.files`, or −1 − index when
- * the time is null or not finite), one INTEGER code per key column read from the files (its ENUM code in
- * `enums[i]`, −1 for null), `t` (x in `ticks` since the epoch, 0 when the time is unusable) and `y`
+ * the time is null or not finite), per key column read from the files its INTEGER ENUM code (−1 for null) or,
+ * with `hash` coding, its UBIGINT hash, then `t` (x in `ticks` since the epoch, 0 when the time is unusable) and `y`
  * (DOUBLE, NaN for null). No column is ever NULL, so the reader needs no validity masks. Pure.
  */
 export function rowStreamSql(
@@ -55,7 +70,7 @@ export function rowStreamSql(
   group: RowStreamGroup,
   x: XStorage,
   ticks: 'ms' | 'us' | 'ns',
-  enums: readonly string[],
+  coding: KeyCoding,
 ): string {
   const col = quoteIdent(plan.x.column)
   let t: string
@@ -65,9 +80,16 @@ export function rowStreamSql(
   const outer = ['CASE WHEN ss_t IS NULL THEN -1 - ss_f ELSE ss_f END']
   const keys = plan.keys.filter((k) => !group.fileKeys.includes(k))
   keys.forEach((k, i) => {
-    const e = enums[i]
+    const text = `CAST(${quoteIdent(k)} AS VARCHAR)`
+    if (coding.kind === 'hash') {
+      if (keys.length !== 1) throw new RangeError('hash codes take exactly one key column')
+      inner.push(`${keyHashSql(text)} AS ss_c${i}`)
+      outer.push(`ss_c${i}`)
+      return
+    }
+    const e = coding.enums[i]
     if (e === undefined) throw new RangeError(`no ENUM type for key column ${k}`)
-    inner.push(`CAST(enum_code(CAST(CAST(${quoteIdent(k)} AS VARCHAR) AS ${quoteIdent(e)})) AS INTEGER) AS ss_c${i}`)
+    inner.push(`CAST(enum_code(CAST(${text} AS ${quoteIdent(e)})) AS INTEGER) AS ss_c${i}`)
     outer.push(`COALESCE(ss_c${i}, -1)`)
   })
   inner.push(`CAST(${quoteIdent(plan.y.column)} AS DOUBLE) AS ss_y`)
@@ -75,6 +97,14 @@ export function rowStreamSql(
   const files = group.files.map((f) => quoteString(f.path)).join(', ')
   const from = `read_parquet([${files}], filename = true, hive_partitioning = false, union_by_name = true)`
   return `SELECT ${outer.join(', ')} FROM (SELECT ${inner.join(', ')} FROM ${from})`
+}
+
+/**
+ * DuckDB's 64-bit hash (UBIGINT) of key text `text`, as the stream and the dictionary query use it; a NULL hashes
+ * to a value of its own.
+ */
+export function keyHashSql(text: string): string {
+  return `hash(${text})`
 }
 
 /** What one streamed group gave: partials per file in file order, and per-file counters. */
@@ -95,13 +125,14 @@ export async function streamGroupRows(
   group: RowStreamGroup,
   x: XStorage,
   ticks: 'ms' | 'us' | 'ns',
-  enums: readonly string[],
-  dictionaries: readonly (readonly string[])[],
+  coding: KeyCoding,
   signal: AbortSignal | undefined,
   onRows?: (rows: number) => void,
 ): Promise<StreamedGroup> {
   const collect = youngCollector()
-  const result = await db.connection.stream(rowStreamSql(plan, group, x, ticks, enums))
+  const result = await db.connection.stream(rowStreamSql(plan, group, x, ticks, coding))
+  const dictionaries = coding.kind === 'enum' ? coding.dictionaries : [coding.dictionary]
+  const hashCodes = new Int32Array(2048)
   const stats: ReadStats[] = group.files.map((f) => ({ file: f.path, rows: 0, skipped: 0 }))
   const done: PartialMoments[][] = group.files.map(() => [])
   const keyCount = dictionaries.length
@@ -120,7 +151,8 @@ export async function streamGroupRows(
       const length = chunk.rowCount
       const fileCol = valuesOf(chunk.getColumnVector(0), Int32Array, length)
       const codes: Int32Array[] = []
-      for (let j = 0; j < keyCount; j++) codes.push(valuesOf(chunk.getColumnVector(1 + j), Int32Array, length))
+      if (coding.kind === 'hash') codes.push(hashedCodes(chunk.getColumnVector(1), coding, length, hashCodes, group))
+      else for (let j = 0; j < keyCount; j++) codes.push(valuesOf(chunk.getColumnVector(1 + j), Int32Array, length))
       const t = valuesOf(chunk.getColumnVector(1 + keyCount), BigInt64Array, length)
       const y = valuesOf(chunk.getColumnVector(2 + keyCount), Float64Array, length)
       // A chunk may hold the end of one file and the start of the next: split it at file changes.
@@ -155,7 +187,7 @@ export async function streamGroupRows(
   return { partials: done, stats }
 }
 
-type ValueArray = Int32Array | BigInt64Array | Float64Array
+type ValueArray = Int32Array | BigInt64Array | BigUint64Array | Float64Array
 
 /**
  * The values of a vector of a column the query never leaves NULL, as a typed array. @duckdb/node-api keeps them
@@ -174,6 +206,29 @@ function valuesOf<T extends ValueArray>(
   return copy
 }
 
+/**
+ * The dictionary indices of one chunk's key hashes (into `out`, grown when a chunk is longer). A hash the
+ * dictionary query did not see means a file changed while it was read.
+ */
+function hashedCodes(
+  vector: DuckDBVector,
+  coding: KeyCoding & { readonly kind: 'hash' },
+  length: number,
+  out: Int32Array,
+  group: RowStreamGroup,
+): Int32Array {
+  const hashes = valuesOf(vector, BigUint64Array, length)
+  const codes = length <= out.length ? out : new Int32Array(length)
+  const words = new Int32Array(hashes.buffer, hashes.byteOffset, length * 2)
+  if (coding.ids.lookup(words, length, codes) >= 0) {
+    const files = group.files.map((f) => f.path).join(', ')
+    throw new DataError(`a key value of ${files} was not there a moment earlier; the files changed while read, rerun`, {
+      context: { file: group.files[0]?.path ?? '' },
+    })
+  }
+  return codes
+}
+
 /** The file index of a `file` column value (see `rowStreamSql`). */
 function fileOf(code: number): number {
   return code < 0 ? -1 - code : code
@@ -183,7 +238,7 @@ function fileOf(code: number): number {
  * Whether the codes of key columns with these dictionaries fold exactly into one double (codes −1 … n − 1
  * of each column as digits of a mixed-radix number below 2^53); when not, the caller reads with SQL.
  */
-export function keyCodesFold(dictionaries: readonly (readonly string[])[]): boolean {
+export function keyCodesFold(dictionaries: readonly KeyDictionary[]): boolean {
   let span = 1
   for (const d of dictionaries) span *= d.length + 1
   return span <= Number.MAX_SAFE_INTEGER
@@ -200,7 +255,7 @@ class CodedRowsAccumulator {
   private readonly seriesKeys: SeriesKey[] = []
   /** Per key position of the plan: the file's Hive value (string) or the position among the coded columns. */
   private readonly keyParts: readonly ({ readonly constant: string } | { readonly coded: number })[]
-  private readonly dictionaries: readonly (readonly string[])[]
+  private readonly dictionaries: readonly KeyDictionary[]
   /** One coded key: code + 1 → series id (−1 = not yet). */
   private seriesOfCode: Int32Array
   /** Several coded keys: folded code → series id. */
@@ -216,7 +271,7 @@ class CodedRowsAccumulator {
     plan: MomentsPlan,
     ticks: TickUnit,
     fileKeys: readonly string[],
-    dictionaries: readonly (readonly string[])[],
+    dictionaries: readonly KeyDictionary[],
   ) {
     this.file = file
     this.fileIndex = fileIndex

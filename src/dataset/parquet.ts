@@ -21,10 +21,18 @@
 import type { DuckDBDataChunk, DuckDBMaterializedResult } from '@duckdb/node-api'
 import { ConfigError, DataError, NoInputError, SlopeshiftError } from '../errors.js'
 import { emptyLag, emptyMoments, invalidMomentsReason, type LagBlock, type Moments } from '../kernel/moments.js'
+import { WordPairIds } from '../kernel/word-pair-ids.js'
 import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import { seriesId } from '../types.js'
 import { type DuckDbSession, openDuckDb } from './duckdb.js'
-import { keyCodesFold, rowStreamTicks, type StreamedGroup, streamGroupRows } from './parquet-rows.js'
+import {
+  type KeyCoding,
+  keyCodesFold,
+  keyHashSql,
+  rowStreamTicks,
+  type StreamedGroup,
+  streamGroupRows,
+} from './parquet-rows.js'
 import { planTimeSlices, type RowGroupSpan } from './slices.js'
 import {
   type CalendarSpan,
@@ -130,18 +138,21 @@ export async function readParquetPartials(
     for (const group of groupByFileKeys(files, plan)) {
       signal?.throwIfAborted()
       const x = checkColumns(group.files, plan, schemas)
-      // ENUM codes for the key columns: the row stream's series ids, the SQL lag sort's and weighted join's keys
-      const enums = lag || plan.weight !== null ? await keyEnums(db, plan, group, scan++, signal) : []
+      // ENUM types for the key columns (the SQL lag sort's and weighted join's keys, the row stream's codes
+      // when hashes will not do), made at most once per file set
+      let enums: string[] | null = null
+      const enumsOf = async (): Promise<string[]> => {
+        enums ??= await keyEnums(db, plan, group, scan++, signal)
+        return enums
+      }
       const ticks = options.lagEngine === 'sql' ? null : rowStreamTicks(plan, x)
       if (ticks !== null) {
-        const dictionaries = await enumValues(db, enums)
-        if (keyCodesFold(dictionaries)) {
+        const coding = (await keyHashCoding(db, plan, group, signal)) ?? (await enumCoding(db, await enumsOf()))
+        if (coding !== null) {
           let got: StreamedGroup
           try {
             const before = rowsSoFar(stats)
-            got = await streamGroupRows(db, plan, group, x, ticks, enums, dictionaries, signal, (n) =>
-              options.onRows?.(before + n),
-            )
+            got = await streamGroupRows(db, plan, group, x, ticks, coding, signal, (n) => options.onRows?.(before + n))
           } catch (err) {
             throw scanError(err, group.files, signal)
           }
@@ -159,6 +170,7 @@ export async function readParquetPartials(
       }
       const paths = group.files.map((f) => f.path)
       const map = plan.window.kind === 'calendar' ? await calendarMap(db, paths, plan, x) : null
+      const keyTypes = lag || plan.weight !== null ? await enumsOf() : []
       const source: SqlSource & { kind: 'parquet' } = {
         kind: 'parquet',
         files: paths,
@@ -166,7 +178,7 @@ export async function readParquetPartials(
         fileKeys: group.fileKeys,
         fileIndex: true,
         ...(map === null ? {} : { calendarMap: map }),
-        ...(enums.length === 0 ? {} : { keyEnums: enums }),
+        ...(keyTypes.length === 0 ? {} : { keyEnums: keyTypes }),
       }
       const sliceRows = options.sliceRows ?? lagSliceRows
       const slices = lag ? await lagSlices(db, group, plan, schemas, sliceRows) : null
@@ -589,14 +601,51 @@ function runsOf(partials: readonly PartialMoments[]): SeriesRun[] {
   return runs
 }
 
-/** The values of each ENUM type in `names`, in code order. */
-async function enumValues(db: DuckDbSession, names: readonly string[]): Promise<string[][]> {
-  const out: string[][] = []
+/**
+ * The row stream's ENUM coding from the ENUM types `names` (their values in code order), or null when the codes
+ * of several key columns would not fold into one number (the SQL query reads the set then).
+ */
+async function enumCoding(db: DuckDbSession, names: readonly string[]): Promise<KeyCoding | null> {
+  const dictionaries: string[][] = []
   for (const name of names) {
     const r = await db.run(`SELECT CAST(unnest(enum_range(NULL::${quoteIdent(name)})) AS VARCHAR)`)
-    out.push(((await r.getRowsJS()) as unknown[][]).map((row) => String(row[0])))
+    dictionaries.push(((await r.getRowsJS()) as unknown[][]).map((row) => String(row[0])))
   }
-  return out
+  return keyCodesFold(dictionaries) ? { kind: 'enum', enums: names, dictionaries } : null
+}
+
+/**
+ * The row stream's hash coding when exactly one key column is read from the files and the hashes of its
+ * distinct values (null included) are distinct; null otherwise (the caller then uses ENUM types).
+ */
+async function keyHashCoding(
+  db: DuckDbSession,
+  plan: MomentsPlan,
+  group: FileGroup,
+  signal: AbortSignal | undefined,
+): Promise<KeyCoding | null> {
+  const coded = plan.keys.filter((k) => !group.fileKeys.includes(k))
+  if (coded.length !== 1) return null
+  const files = `[${group.files.map((f) => quoteString(f.path)).join(', ')}]`
+  const text = `CAST(${quoteIdent(coded[0] as string)} AS VARCHAR)`
+  const result = await runScan(
+    db,
+    `SELECT v, ${keyHashSql('v')} FROM (SELECT DISTINCT ${text} AS v ` +
+      `FROM read_parquet(${files}, hive_partitioning = false, union_by_name = true))`,
+    group.files,
+    signal,
+  )
+  const rows = (await result.getRowsJS()) as [string | null, bigint][]
+  const ids = new WordPairIds(rows.length)
+  const words = new BigUint64Array(1)
+  const halves = new Int32Array(words.buffer)
+  const dictionary: (string | null)[] = []
+  for (const [value, hash] of rows) {
+    words[0] = hash
+    if (!ids.add(halves[0] as number, halves[1] as number, dictionary.length)) return null
+    dictionary.push(value)
+  }
+  return { kind: 'hash', ids, dictionary }
 }
 
 /** The partials of one (file, series), windows ascending. */
