@@ -3,7 +3,8 @@
  * row with the previous row of its (file, series, window) in file order. In SQL that takes a window
  * function, which sorts and holds a slice of rows at a time: on the bench (10 M rows, 2 threads) 5.6 s
  * and ~300 MB. Here DuckDB only decodes: one streaming query per set of files yields, in file order,
- * the file index, each key column as an ENUM code, the time as integer ticks and y as DOUBLE; the
+ * the file index, the key (one key column as DuckDB's hash of its text, several as ENUM codes), the time
+ * as integer ticks and y as DOUBLE; the
  * kernel (`accumulateInt64`, the same loop as the Arrow reader) does window, x, moments and lag pairs
  * in one pass. Measured on the same bench: the read takes 2.3–2.5 s and the whole run peaks at ~270 MB (set by
  * the table writes, not the read), and the sums are bit-identical from run to run whatever the thread count
