@@ -106,8 +106,16 @@ export function affectedWindowStarts(
     }
     for (const [id, p] of before) if (!seen.has(id)) direct.add(p.windowStartMs)
   }
+  return withBaselineWindows(direct, baselineWindows, spec)
+}
+
+/**
+ * The window starts `direct` plus, after each, the `baselineWindows` windows whose baseline it is (their tests
+ * compare against it), distinct and ascending.
+ */
+export function withBaselineWindows(direct: Iterable<number>, baselineWindows: number, spec: WindowSpec): number[] {
   const out = new Set(direct)
-  for (const first of direct) {
+  for (const first of [...out]) {
     let start = first
     for (let i = 0; i < baselineWindows; i++) {
       start = windowEndOf(spec, start)

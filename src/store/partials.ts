@@ -353,12 +353,7 @@ export async function readPartials(
   try {
     columns = await withConnection(options, async (c) => (await c.runAndReadAll(sql)).getColumns())
   } catch (cause) {
-    const message = cause instanceof Error ? cause.message : String(cause)
-    const Err = /no files found|no such file|permission denied/i.test(message) ? IoError : DataError
-    throw new Err(
-      `cannot read partials (${files.length} file(s), first ${files[0]}): ${message}; if a partials file is damaged, delete it and rerun with run --full`,
-      { context: { file: files[0] ?? '' }, cause },
-    )
+    throw readError(files, cause)
   }
   const index = new Map<string, number>([...names, 'filename'].map((n, i) => [n, i]))
   const c = (name: (typeof names)[number] | 'filename'): DuckDBValue[] => columns[index.get(name) ?? -1] ?? []
@@ -423,6 +418,40 @@ export async function readPartials(
       (a, b) => comparePaths(a.id, b.id) || a.p.windowStartMs - b.p.windowStartMs || comparePaths(a.p.file, b.p.file),
     )
     .map((r) => r.p)
+}
+
+/**
+ * The distinct window starts (epoch ms, ascending) held by partials files, without reading their moments: what a
+ * `run --full` needs of the partials it replaces (every window they held is re-merged).
+ *
+ * @throws DataError or IoError as `readPartials` does.
+ */
+export async function readPartialWindowStarts(
+  files: readonly string[],
+  options: PartialsDbOptions = {},
+): Promise<number[]> {
+  if (files.length === 0) return []
+  const sql =
+    `SELECT DISTINCT CAST(window_start_ms AS DOUBLE) FROM read_parquet([${files.map(sqlString).join(', ')}]) ` +
+    'ORDER BY 1'
+  try {
+    return await withConnection(options, async (c) =>
+      ((await c.runAndReadAll(sql)).getColumns()[0] ?? []).map((v) => num(v, 'window_start_ms', files[0] ?? '?')),
+    )
+  } catch (cause) {
+    if (cause instanceof DataError) throw cause
+    throw readError(files, cause)
+  }
+}
+
+/** The error for partials files DuckDB could not read: IoError when missing or not permitted, else DataError. */
+function readError(files: readonly string[], cause: unknown): DataError | IoError {
+  const message = cause instanceof Error ? cause.message : String(cause)
+  const Err = /no files found|no such file|permission denied/i.test(message) ? IoError : DataError
+  return new Err(
+    `cannot read partials (${files.length} file(s), first ${files[0]}): ${message}; if a partials file is damaged, delete it and rerun with run --full`,
+    { context: { file: files[0] ?? '' }, cause },
+  )
 }
 
 /**

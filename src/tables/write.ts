@@ -168,8 +168,17 @@ async function writePartitions(
       try {
         for (const partition of [...partitions].sort()) {
           const folder = join(outDir, partition)
-          const existing = mergeExisting ? await existingFile(connection, join(options.dir, partition), columns) : null
+          let existing = mergeExisting ? await existingFile(connection, join(options.dir, partition), columns) : null
           const range = staged.rangeOf.get(partition)
+          // Every existing row in a replaced window (a --full rebuild, a whole day recomputed): nothing to merge,
+          // so no anti-join and no second sort of the new rows, which come in the table's order already.
+          if (existing !== null && !(await keepsRows(connection, existing, replaceStarts))) {
+            if (range === undefined) {
+              removed.push(partition)
+              continue
+            }
+            existing = null
+          }
           if (range === undefined && existing === null) continue
           await makeDir(folder)
           const finalPath = join(folder, partitionFileName)
@@ -600,6 +609,21 @@ async function copyPartition(connection: DuckDBConnection, plan: CopyPlan): Prom
       { context: { file: plan.tempPath }, cause: err },
     )
   }
+}
+
+/** Whether partition file `path` holds a row whose window start (epoch ms) is not in `replaceStarts`. */
+async function keepsRows(
+  connection: DuckDBConnection,
+  path: string,
+  replaceStarts: readonly number[],
+): Promise<boolean> {
+  if (replaceStarts.length === 0) return true
+  const starts = replaceStarts.map((s) => String(Math.trunc(s))).join(', ')
+  const result = await connection.runAndReadAll(
+    `SELECT EXISTS (SELECT 1 FROM read_parquet(${quoteLiteral(path)}, hive_partitioning = false) ` +
+      `WHERE epoch_ms(window_start) NOT IN (${starts}))`,
+  )
+  return result.getRows()[0]?.[0] === true
 }
 
 /**
