@@ -12,6 +12,7 @@ import {
   partialsColumns,
   partialsFilePath,
   readPartials,
+  readPartialWindowStarts,
   writePartials,
 } from '../../src/store/partials.js'
 import type { PartialMoments } from '../../src/types.js'
@@ -164,6 +165,38 @@ describe('readPartials', () => {
     c.closeSync()
     db.closeSync()
     const err = await readPartials([bogus]).catch((e: unknown) => e)
+    expect(err).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
+    expect((err as Error).message).toMatch(/cannot read partials \(1 file\(s\), first .*bogus\.parquet\)/)
+  })
+})
+
+describe('readPartialWindowStarts', () => {
+  it('gives the distinct window starts of many files, ascending, and reads nothing for no files', async () => {
+    const targets: string[] = []
+    for (const [i, windows] of [[2, 0], [1, 2, 5], []].entries()) {
+      const file = `/lake/part-${i}.parquet`
+      const ps = windows.map((w) => ({
+        file,
+        key: ['north'],
+        windowStartMs: W0 + w * H,
+        moments: readings(w, 5, true),
+      }))
+      const target = partialsFilePath(root, file, `${i}`.repeat(64))
+      await writePartials(target, ps)
+      targets.push(target)
+    }
+    expect(await readPartialWindowStarts(targets)).toEqual([W0, W0 + H, W0 + 2 * H, W0 + 5 * H])
+    expect(await readPartialWindowStarts([])).toEqual([])
+  })
+
+  it('fails with a data error naming the file when it is not a partials file', async () => {
+    const bogus = join(root, 'bogus.parquet')
+    const db = await DuckDBInstance.create(':memory:')
+    const c = await db.connect()
+    await c.run(`COPY (SELECT 1 AS kw) TO '${bogus}' (FORMAT parquet)`)
+    c.closeSync()
+    db.closeSync()
+    const err = await readPartialWindowStarts([bogus]).catch((e: unknown) => e)
     expect(err).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
     expect((err as Error).message).toMatch(/cannot read partials \(1 file\(s\), first .*bogus\.parquet\)/)
   })

@@ -188,6 +188,33 @@ describe('replaceWindows', () => {
   })
 })
 
+describe('replaceWindows when every existing row of a partition is replaced', () => {
+  it('writes the same bytes as the new rows alone (no merge), and removes a partition left without rows', async () => {
+    const dir = join(freshRoot(), 'fits')
+    const old = existingFits()
+    await writeTable('fits', old, { keyColumns, dir, compression: 'zstd', connection })
+    // A rebuild: every window of the table is replaced; day 1 gets new rows, days 2 and 3 none.
+    const replaced = [...new Set(old.map((r) => r.window_start))]
+    const fresh = [
+      fitRow(['south', 'c2'], day0 + 6 * hourMs, { run_id: 'run-0002' }),
+      fitRow(['north', 'c1'], day0, { run_id: 'run-0002', n: 9 }),
+    ]
+    const result = await replaceWindows('fits', fresh, {
+      keyColumns,
+      dir,
+      compression: 'zstd',
+      connection,
+      replaceWindowStarts: replaced,
+    })
+    expect(result.written.map((w) => [w.partition, w.rows])).toEqual([['window_date=2026-03-01', 2]])
+    expect(result.removed).toEqual(['window_date=2026-03-02', 'window_date=2026-03-03'])
+    const alone = join(freshRoot(), 'fits')
+    await writeTable('fits', fresh, { keyColumns, dir: alone, compression: 'zstd', connection })
+    const day1 = 'window_date=2026-03-01/part-0.parquet'
+    expect((await snapshot(dir)).get(day1)?.equals((await snapshot(alone)).get(day1) ?? Buffer.alloc(0))).toBe(true)
+  })
+})
+
 describe('publishStaged', () => {
   it('moves staged files of several tables into place and empties the staging folder', async () => {
     const base = freshRoot()
