@@ -6,14 +6,15 @@ import { describe, expect, it } from 'vitest'
 import { openDuckDb } from '../../src/dataset/duckdb.js'
 
 describe('openDuckDb', () => {
-  it('applies threads, memory limit, spill folder and the UTC session zone', async () => {
+  it('applies threads, memory limit, spill folder, the UTC session zone and no file cache', async () => {
     const spill = path.join(await mkdtemp(path.join(tmpdir(), 'slopeshift-duckdb-')), 'spill')
     const db = await openDuckDb({ threads: 1, memoryLimit: '256MB', tempDirectory: spill })
     try {
       const r = await db.run(
-        "SELECT current_setting('threads'), current_setting('memory_limit'), current_setting('temp_directory'), current_setting('TimeZone')",
+        "SELECT current_setting('threads'), current_setting('memory_limit'), current_setting('temp_directory'), current_setting('TimeZone'), current_setting('enable_external_file_cache')",
       )
-      const [threads, memory, temp, zone] = ((await r.getRowsJS())[0] ?? []) as unknown[]
+      const [threads, memory, temp, zone, fileCache] = ((await r.getRowsJS())[0] ?? []) as unknown[]
+      expect(fileCache).toBe(false)
       expect(Number(threads)).toBe(1)
       // DuckDB reports the limit in its own units (256MB → "244.1 MiB").
       expect(String(memory)).toBe('244.1 MiB')
