@@ -152,6 +152,9 @@ async function writePartitions(
   const columns = tableColumns(table, keyColumns)
   const staged = stageRows(table, columns, keyColumns, rows)
   const replaceStarts = mergeExisting ? [...new Set(options.replaceWindowStarts ?? [])].sort((a, b) => a - b) : []
+  const replaceSet = new Set(replaceStarts)
+  const newRowsReplaced =
+    replaceStarts.length > 0 && rows.every((r) => replaceSet.has((r as { readonly window_start: number }).window_start))
   const partitions = new Set(staged.rangeOf.keys())
   for (const start of replaceStarts) {
     const name = partitionName(table, start)
@@ -193,6 +196,7 @@ async function writePartitions(
             tempPath,
             compression: options.compression,
             replaceStarts,
+            newRowsReplaced,
           })
           if (rowCount === 0 && range === undefined) {
             pending.pop()
@@ -573,6 +577,11 @@ interface CopyPlan {
   readonly compression: Compression
   /** Window starts (epoch ms) whose existing rows are all dropped. */
   readonly replaceStarts?: readonly number[]
+  /**
+   * Every new row lies in a window of `replaceStarts`: no existing row kept by that filter can share a new row's
+   * identity, so the merge needs no anti-join.
+   */
+  readonly newRowsReplaced?: boolean
 }
 
 /**
@@ -586,14 +595,16 @@ async function copyPartition(connection: DuckDBConnection, plan: CopyPlan): Prom
     const match = identityColumns(plan.table, plan.keyColumns)
       .map((c) => `n.${quoteIdent(c)} IS NOT DISTINCT FROM e.${quoteIdent(c)}`)
       .join(' AND ')
+    const kept: string[] = []
+    if (plan.newRowsReplaced !== true) kept.push(`NOT EXISTS (SELECT 1 FROM n WHERE ${match})`)
+    if (plan.replaceStarts !== undefined && plan.replaceStarts.length > 0) {
+      kept.push(`epoch_ms(e.window_start) NOT IN (${plan.replaceStarts.map((s) => String(Math.trunc(s))).join(', ')})`)
+    }
     source =
       `WITH n AS (${plan.newRows}) SELECT ${list} FROM n` +
       ` UNION ALL SELECT ${plan.columns.map((c) => `e.${quoteIdent(c.name)}`).join(', ')}` +
       ` FROM read_parquet(${quoteLiteral(plan.existing)}, hive_partitioning = false) AS e` +
-      ` WHERE NOT EXISTS (SELECT 1 FROM n WHERE ${match})`
-    if (plan.replaceStarts !== undefined && plan.replaceStarts.length > 0) {
-      source += ` AND epoch_ms(e.window_start) NOT IN (${plan.replaceStarts.map((s) => String(Math.trunc(s))).join(', ')})`
-    }
+      (kept.length === 0 ? '' : ` WHERE ${kept.join(' AND ')}`)
     const order = orderColumns(plan.table, plan.keyColumns)
       .map((c) => `${quoteIdent(c)} ASC NULLS FIRST`)
       .join(', ')
