@@ -54,6 +54,17 @@ function expectBitExact(actual: readonly PartialMoments[], expected: readonly Pa
   }
 }
 
+/** A Parquet file (written by DuckDB) that is not a partials file. */
+async function writeNotPartials(): Promise<string> {
+  const bogus = join(root, 'bogus.parquet')
+  const db = await DuckDBInstance.create(':memory:')
+  const c = await db.connect()
+  await c.run(`COPY (SELECT 1 AS kw) TO '${bogus}' (FORMAT parquet)`)
+  c.closeSync()
+  db.closeSync()
+  return bogus
+}
+
 describe('writePartials', () => {
   it('round-trips moments and lag blocks bit for bit, including nulls and non-finite edge values', async () => {
     const file = '/lake/site=north/part-0001.parquet'
@@ -158,12 +169,7 @@ describe('readPartials', () => {
   })
 
   it('fails with a data error naming the file when it is not a partials file', async () => {
-    const bogus = join(root, 'bogus.parquet')
-    const db = await DuckDBInstance.create(':memory:')
-    const c = await db.connect()
-    await c.run(`COPY (SELECT 1 AS kw) TO '${bogus}' (FORMAT parquet)`)
-    c.closeSync()
-    db.closeSync()
+    const bogus = await writeNotPartials()
     const err = await readPartials([bogus]).catch((e: unknown) => e)
     expect(err).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
     expect((err as Error).message).toMatch(/cannot read partials \(1 file\(s\), first .*bogus\.parquet\)/)
@@ -190,12 +196,7 @@ describe('readPartialWindowStarts', () => {
   })
 
   it('fails with a data error naming the file when it is not a partials file', async () => {
-    const bogus = join(root, 'bogus.parquet')
-    const db = await DuckDBInstance.create(':memory:')
-    const c = await db.connect()
-    await c.run(`COPY (SELECT 1 AS kw) TO '${bogus}' (FORMAT parquet)`)
-    c.closeSync()
-    db.closeSync()
+    const bogus = await writeNotPartials()
     const err = await readPartialWindowStarts([bogus]).catch((e: unknown) => e)
     expect(err).toMatchObject({ code: 'SLOPESHIFT_DATA', exitCode: 65 })
     expect((err as Error).message).toMatch(/cannot read partials \(1 file\(s\), first .*bogus\.parquet\)/)
