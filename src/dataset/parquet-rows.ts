@@ -116,9 +116,9 @@ export interface StreamedGroup {
 }
 
 /**
- * Streams the rows of `group` through the kernel (see the module comment). `enums[i]` names the ENUM type
- * of the i-th key column read from the files, `dictionaries[i]` its values in code order. Checks `signal`
- * between chunks; `onRows` gets the running row count about every million rows.
+ * Streams the rows of `group` through the kernel (see the module comment); `coding` says how the key columns read
+ * from the files become codes. Checks `signal` between chunks; `onRows` gets the running row count about every
+ * million rows.
  */
 export async function streamGroupRows(
   db: DuckDbSession,
