@@ -36,6 +36,20 @@ export interface RowStreamGroup {
   readonly fileKeys: readonly string[]
 }
 
+/** The key columns of `plan` read from the files of `group` (the others come from its Hive folders), in plan order. */
+export function codedKeys(plan: MomentsPlan, group: RowStreamGroup): string[] {
+  return plan.keys.filter((k) => !group.fileKeys.includes(k))
+}
+
+/**
+ * `read_parquet` over the files of `group`, matching columns by name and leaving Hive folder segments to the caller
+ * (they are filled in from discovery); `options` are further `read_parquet` options, e.g. `filename = true`.
+ */
+export function groupScanSql(group: RowStreamGroup, options = ''): string {
+  const files = group.files.map((f) => quoteString(f.path)).join(', ')
+  return `read_parquet([${files}]${options === '' ? '' : `, ${options}`}, hive_partitioning = false, union_by_name = true)`
+}
+
 /** Dictionary values of one key column in code order; null stands for a null key. */
 export type KeyDictionary = readonly (string | null)[]
 
@@ -79,7 +93,7 @@ export function rowStreamSql(
   else t = plan.x.epochUnit === 's' ? `CAST(${col} AS BIGINT) * 1000` : `CAST(${col} AS BIGINT)`
   const inner = ['CAST(file_index AS INTEGER) AS ss_f', `${t} AS ss_t`]
   const outer = ['CASE WHEN ss_t IS NULL THEN -1 - ss_f ELSE ss_f END']
-  const keys = plan.keys.filter((k) => !group.fileKeys.includes(k))
+  const keys = codedKeys(plan, group)
   keys.forEach((k, i) => {
     const text = `CAST(${quoteIdent(k)} AS VARCHAR)`
     if (coding.kind === 'hash') {
@@ -95,9 +109,7 @@ export function rowStreamSql(
   })
   inner.push(`CAST(${quoteIdent(plan.y.column)} AS DOUBLE) AS ss_y`)
   outer.push('COALESCE(ss_t, 0)', "COALESCE(ss_y, CAST('NaN' AS DOUBLE))")
-  const files = group.files.map((f) => quoteString(f.path)).join(', ')
-  const from = `read_parquet([${files}], filename = true, hive_partitioning = false, union_by_name = true)`
-  return `SELECT ${outer.join(', ')} FROM (SELECT ${inner.join(', ')} FROM ${from})`
+  return `SELECT ${outer.join(', ')} FROM (SELECT ${inner.join(', ')} FROM ${groupScanSql(group, 'filename = true')})`
 }
 
 /**

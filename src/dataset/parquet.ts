@@ -26,6 +26,8 @@ import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } fr
 import { seriesId } from '../types.js'
 import { type DuckDbSession, openDuckDb } from './duckdb.js'
 import {
+  codedKeys,
+  groupScanSql,
   type KeyCoding,
   keyCodesFold,
   keyHashSql,
@@ -329,16 +331,13 @@ async function keyEnums(
   tag: number,
   signal: AbortSignal | undefined,
 ): Promise<string[]> {
-  const files = `[${group.files.map((f) => quoteString(f.path)).join(', ')}]`
   const names: string[] = []
-  for (const key of plan.keys) {
-    if (group.fileKeys.includes(key)) continue
+  for (const key of codedKeys(plan, group)) {
     const name = `ss_enum_${tag}_${names.length}`
     const col = `CAST(${quoteIdent(key)} AS VARCHAR)`
     await runScan(
       db,
-      `CREATE TYPE ${quoteIdent(name)} AS ENUM (SELECT DISTINCT ${col} FROM read_parquet(${files}, ` +
-        `hive_partitioning = false, union_by_name = true) WHERE ${col} IS NOT NULL)`,
+      `CREATE TYPE ${quoteIdent(name)} AS ENUM (SELECT DISTINCT ${col} FROM ${groupScanSql(group)} WHERE ${col} IS NOT NULL)`,
       group.files,
       signal,
     )
@@ -624,14 +623,12 @@ async function keyHashCoding(
   group: FileGroup,
   signal: AbortSignal | undefined,
 ): Promise<KeyCoding | null> {
-  const coded = plan.keys.filter((k) => !group.fileKeys.includes(k))
+  const coded = codedKeys(plan, group)
   if (coded.length !== 1) return null
-  const files = `[${group.files.map((f) => quoteString(f.path)).join(', ')}]`
   const text = `CAST(${quoteIdent(coded[0] as string)} AS VARCHAR)`
   const result = await runScan(
     db,
-    `SELECT v, ${keyHashSql('v')} FROM (SELECT DISTINCT ${text} AS v ` +
-      `FROM read_parquet(${files}, hive_partitioning = false, union_by_name = true))`,
+    `SELECT v, ${keyHashSql('v')} FROM (SELECT DISTINCT ${text} AS v FROM ${groupScanSql(group)})`,
     group.files,
     signal,
   )

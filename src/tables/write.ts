@@ -598,7 +598,7 @@ async function copyPartition(connection: DuckDBConnection, plan: CopyPlan): Prom
     const kept: string[] = []
     if (plan.newRowsReplaced !== true) kept.push(`NOT EXISTS (SELECT 1 FROM n WHERE ${match})`)
     if (plan.replaceStarts !== undefined && plan.replaceStarts.length > 0) {
-      kept.push(`epoch_ms(e.window_start) NOT IN (${plan.replaceStarts.map((s) => String(Math.trunc(s))).join(', ')})`)
+      kept.push(outsideWindowsSql('e.window_start', plan.replaceStarts))
     }
     source =
       `WITH n AS (${plan.newRows}) SELECT ${list} FROM n` +
@@ -629,12 +629,16 @@ async function keepsRows(
   replaceStarts: readonly number[],
 ): Promise<boolean> {
   if (replaceStarts.length === 0) return true
-  const starts = replaceStarts.map((s) => String(Math.trunc(s))).join(', ')
   const result = await connection.runAndReadAll(
     `SELECT EXISTS (SELECT 1 FROM read_parquet(${quoteLiteral(path)}, hive_partitioning = false) ` +
-      `WHERE epoch_ms(window_start) NOT IN (${starts}))`,
+      `WHERE ${outsideWindowsSql('window_start', replaceStarts)})`,
   )
   return result.getRows()[0]?.[0] === true
+}
+
+/** SQL predicate: TIMESTAMPTZ column `column` starts none of the windows `starts` (epoch ms). */
+function outsideWindowsSql(column: string, starts: readonly number[]): string {
+  return `epoch_ms(${column}) NOT IN (${starts.map((s) => String(Math.trunc(s))).join(', ')})`
 }
 
 /**

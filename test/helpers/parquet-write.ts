@@ -2,8 +2,10 @@
  * Writes real Parquet files with DuckDB (`COPY … (FORMAT parquet)`) for reader tests. Rows go into a
  * temp table of raw values first; `select` then shapes the written columns (timestamp types, casts).
  */
-import { mkdir } from 'node:fs/promises'
-import { dirname } from 'node:path'
+import { mkdir, mkdtemp, rm } from 'node:fs/promises'
+import { tmpdir } from 'node:os'
+import { dirname, join } from 'node:path'
+import { afterAll, beforeAll } from 'vitest'
 import { type DuckDbSession, openDuckDb } from '../../src/dataset/duckdb.js'
 import { quoteIdent, quoteString } from '../../src/dataset/sql.js'
 
@@ -71,5 +73,32 @@ export class ParquetWriter {
 
   close(): void {
     this.db.close()
+  }
+}
+
+/**
+ * A temp folder and a ParquetWriter shared by the tests of one file: made before all of them, closed and removed
+ * after. Read `dir` and `writer` inside tests only.
+ */
+export function useParquetScratch(prefix: string): { readonly dir: string; readonly writer: ParquetWriter } {
+  let dir: string | null = null
+  let writer: ParquetWriter | null = null
+  beforeAll(async () => {
+    dir = await mkdtemp(join(tmpdir(), prefix))
+    writer = await ParquetWriter.open()
+  })
+  afterAll(async () => {
+    writer?.close()
+    if (dir !== null) await rm(dir, { recursive: true, force: true })
+  })
+  return {
+    get dir(): string {
+      if (dir === null) throw new Error('useParquetScratch: dir is made in beforeAll')
+      return dir
+    },
+    get writer(): ParquetWriter {
+      if (writer === null) throw new Error('useParquetScratch: writer is opened in beforeAll')
+      return writer
+    },
   }
 }

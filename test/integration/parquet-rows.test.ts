@@ -1,13 +1,13 @@
-import { mkdir, mkdtemp, rm, stat } from 'node:fs/promises'
-import { tmpdir } from 'node:os'
+import { mkdir, stat } from 'node:fs/promises'
 import { join } from 'node:path'
-import { afterAll, beforeAll, describe, expect, it } from 'vitest'
+import { describe, expect, it } from 'vitest'
 import { type ParquetPartials, readParquetPartials } from '../../src/dataset/parquet.js'
 import { keyCodesFold, rowStreamTicks } from '../../src/dataset/parquet-rows.js'
 import { parseWindow, type WindowSpec } from '../../src/kernel/window.js'
 import type { MomentsPlan, SourceFile } from '../../src/types.js'
 import { expectSameMoments } from '../helpers/close.js'
-import { ParquetWriter, type RawType, type RawValue } from '../helpers/parquet-write.js'
+import { type RawType, type RawValue, useParquetScratch } from '../helpers/parquet-write.js'
+import { powerDrawPlan } from '../helpers/power-plan.js'
 import { mulberry32 } from '../helpers/prng.js'
 
 // The lag block's Parquet rows streamed through our kernel (parquet-rows.ts) against the window-function
@@ -61,29 +61,10 @@ function planFor(
   window: WindowSpec,
   options: { keys?: readonly string[]; epochUnit?: MomentsPlan['x']['epochUnit'] } = {},
 ): MomentsPlan {
-  return {
-    keys: options.keys ?? ['site', 'unit'],
-    x: { column: 'ts', epochUnit: options.epochUnit ?? 'ms' },
-    y: { column: 'power_kw' },
-    weight: null,
-    window,
-    xUnit: 'minute',
-    trackLag: true,
-  }
+  return powerDrawPlan(window, options.keys ?? ['site', 'unit'], options.epochUnit)
 }
 
-let dir: string
-let writer: ParquetWriter
-
-beforeAll(async () => {
-  dir = await mkdtemp(join(tmpdir(), 'slopeshift-rows-'))
-  writer = await ParquetWriter.open()
-})
-
-afterAll(async () => {
-  writer.close()
-  await rm(dir, { recursive: true, force: true })
-})
+const scratch = useParquetScratch('slopeshift-rows-')
 
 async function write(
   name: string,
@@ -91,9 +72,9 @@ async function write(
   select: string,
   hive: Record<string, string> = {},
 ): Promise<SourceFile> {
-  const path = join(dir, name)
+  const path = join(scratch.dir, name)
   await mkdir(join(path, '..'), { recursive: true })
-  await writer.write(path, rawCols, rows, { select, rowGroupSize: 5000 })
+  await scratch.writer.write(path, rawCols, rows, { select, rowGroupSize: 5000 })
   const s = await stat(path)
   return { path, kind: 'parquet', size: s.size, mtimeMs: s.mtimeMs, hive }
 }

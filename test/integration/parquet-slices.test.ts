@@ -1,11 +1,11 @@
-import { mkdtemp, rm, stat } from 'node:fs/promises'
-import { tmpdir } from 'node:os'
+import { stat } from 'node:fs/promises'
 import { join } from 'node:path'
-import { afterAll, beforeAll, describe, expect, it } from 'vitest'
+import { describe, expect, it } from 'vitest'
 import { type ParquetPartials, readParquetPartials } from '../../src/dataset/parquet.js'
 import { parseWindow, type WindowSpec } from '../../src/kernel/window.js'
 import type { MomentsPlan, SourceFile } from '../../src/types.js'
-import { ParquetWriter, type RawType, type RawValue } from '../helpers/parquet-write.js'
+import { type RawType, type RawValue, useParquetScratch } from '../helpers/parquet-write.js'
+import { powerDrawPlan } from '../helpers/power-plan.js'
 import { mulberry32 } from '../helpers/prng.js'
 
 // Invented data (compressor power draw of three cold-store units): the slices must give exactly the
@@ -50,33 +50,14 @@ const tsSelect = (type: string) =>
   `ELSE epoch_ms(ts_ms) END AS ${type}) AS ts, power_kw`
 
 function planFor(window: WindowSpec, epochUnit: MomentsPlan['x']['epochUnit'] = 'ms'): MomentsPlan {
-  return {
-    keys: ['unit'],
-    x: { column: 'ts', epochUnit },
-    y: { column: 'power_kw' },
-    weight: null,
-    window,
-    xUnit: 'minute',
-    trackLag: true,
-  }
+  return powerDrawPlan(window, ['unit'], epochUnit)
 }
 
-let dir: string
-let writer: ParquetWriter
-
-beforeAll(async () => {
-  dir = await mkdtemp(join(tmpdir(), 'slopeshift-slices-'))
-  writer = await ParquetWriter.open()
-})
-
-afterAll(async () => {
-  writer.close()
-  await rm(dir, { recursive: true, force: true })
-})
+const scratch = useParquetScratch('slopeshift-slices-')
 
 async function write(name: string, rows: RawValue[][], select: string, rowGroupSize = 2048): Promise<SourceFile> {
-  const path = join(dir, name)
-  await writer.write(path, rawCols, rows, { select, rowGroupSize })
+  const path = join(scratch.dir, name)
+  await scratch.writer.write(path, rawCols, rows, { select, rowGroupSize })
   const s = await stat(path)
   return { path, kind: 'parquet', size: s.size, mtimeMs: s.mtimeMs, hive: {} }
 }

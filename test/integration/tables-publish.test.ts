@@ -160,23 +160,34 @@ describe('replacePartitions', () => {
   })
 })
 
+/** A fits table of `existingFits()` in a fresh folder. */
+async function existingFitsTable(): Promise<{ dir: string; old: FitRow[] }> {
+  const dir = join(freshRoot(), 'fits')
+  const old = existingFits()
+  await writeTable('fits', old, { keyColumns, dir, compression: 'zstd', connection })
+  return { dir, old }
+}
+
+/** `replaceWindows` of `fresh` fits rows over the windows starting at `replaced` in table `dir`. */
+function replaceFitWindows(dir: string, fresh: FitRow[], replaced: number[]): ReturnType<typeof replaceWindows> {
+  return replaceWindows('fits', fresh, {
+    keyColumns,
+    dir,
+    compression: 'zstd',
+    connection,
+    replaceWindowStarts: replaced,
+  })
+}
+
 describe('replaceWindows', () => {
   it('drops every existing row of the replaced windows and reports partitions left empty', async () => {
-    const dir = join(freshRoot(), 'fits')
-    const old = existingFits()
-    await writeTable('fits', old, { keyColumns, dir, compression: 'zstd', connection })
+    const { dir, old } = await existingFitsTable()
     const before = await snapshot(dir)
     // Window day0+6h is recomputed and now has only one series; day 2 (both its windows' rows) disappears entirely.
     const day2 = old.filter((r) => r.window_start >= day0 + dayMs && r.window_start < day0 + 2 * dayMs)
     const replaced = [day0 + 6 * hourMs, ...new Set(day2.map((r) => r.window_start))]
     const fresh = [fitRow(['south', 'c2'], day0 + 6 * hourMs, { run_id: 'run-0002' })]
-    const result = await replaceWindows('fits', fresh, {
-      keyColumns,
-      dir,
-      compression: 'zstd',
-      connection,
-      replaceWindowStarts: replaced,
-    })
+    const result = await replaceFitWindows(dir, fresh, replaced)
     expect(result.written.map((w) => [w.partition, w.rows])).toEqual([['window_date=2026-03-01', 7]])
     expect(result.removed).toEqual(['window_date=2026-03-02'])
     const after = await snapshot(dir)
@@ -186,26 +197,16 @@ describe('replaceWindows', () => {
     expect(day1.filter((r) => r.window_start === day0 + 6 * hourMs)).toEqual(fresh)
     expect(day1.length).toBe(7)
   })
-})
 
-describe('replaceWindows when every existing row of a partition is replaced', () => {
-  it('writes the same bytes as the new rows alone (no merge), and removes a partition left without rows', async () => {
-    const dir = join(freshRoot(), 'fits')
-    const old = existingFits()
-    await writeTable('fits', old, { keyColumns, dir, compression: 'zstd', connection })
+  it('writes the same bytes as the new rows alone (no merge) when every existing row of a partition is replaced, and removes a partition left without rows', async () => {
+    const { dir, old } = await existingFitsTable()
     // A rebuild: every window of the table is replaced; day 1 gets new rows, days 2 and 3 none.
     const replaced = [...new Set(old.map((r) => r.window_start))]
     const fresh = [
       fitRow(['south', 'c2'], day0 + 6 * hourMs, { run_id: 'run-0002' }),
       fitRow(['north', 'c1'], day0, { run_id: 'run-0002', n: 9 }),
     ]
-    const result = await replaceWindows('fits', fresh, {
-      keyColumns,
-      dir,
-      compression: 'zstd',
-      connection,
-      replaceWindowStarts: replaced,
-    })
+    const result = await replaceFitWindows(dir, fresh, replaced)
     expect(result.written.map((w) => [w.partition, w.rows])).toEqual([['window_date=2026-03-01', 2]])
     expect(result.removed).toEqual(['window_date=2026-03-02', 'window_date=2026-03-03'])
     const alone = join(freshRoot(), 'fits')
