@@ -10,30 +10,20 @@
  * the table writes, not the read), and the sums are bit-identical from run to run whatever the thread count
  * (one pass in file order).
  *
- * Files clustered in time are read as one stream per engine thread (at most two), each over a time slice of whole
- * windows (`streamGroupRows`); a (file, series, window) still meets its rows in one stream, in file order.
- *
- * Memory: one 2,048-row chunk at a time per stream plus the slots. DuckDB frees a fetched chunk only when V8
+ * Memory: one 2,048-row chunk at a time plus the slots. DuckDB frees a fetched chunk only when V8
  * collects its small JavaScript wrapper, so the reader asks for a young-generation collection every
  * `collectEvery` chunks (young-gc.ts; without it the peak is ~100 MB higher, nothing else changes).
  */
-import type { DuckDBConnection, DuckDBDataChunk, DuckDBVector } from '@duckdb/node-api'
+import type { DuckDBDataChunk, DuckDBVector } from '@duckdb/node-api'
 import { DataError } from '../errors.js'
 import { accumulateInt64, MomentSlots } from '../kernel/accumulate.js'
 import { SlotIndex } from '../kernel/slot-index.js'
 import { type TickUnit, WindowCursor } from '../kernel/window-x.js'
 import type { WordPairIds } from '../kernel/word-pair-ids.js'
-import {
-  type MomentsPlan,
-  type PartialMoments,
-  type ReadStats,
-  type SeriesKey,
-  type SourceFile,
-  seriesId,
-} from '../types.js'
+import type { MomentsPlan, PartialMoments, ReadStats, SeriesKey, SourceFile } from '../types.js'
 import type { DuckDbSession } from './duckdb.js'
 import { slotPartials } from './slot-partials.js'
-import { quoteIdent, quoteString, type XSlice, type XStorage, xSliceSql } from './sql.js'
+import { quoteIdent, quoteString, type XStorage } from './sql.js'
 import { youngCollector } from './young-gc.js'
 
 /** Chunks between two requested young-generation collections (see the module comment). */
@@ -88,8 +78,7 @@ export function rowStreamTicks(plan: MomentsPlan, x: XStorage): 'ms' | 'us' | 'n
  * The streaming query: per row, in file order, `file` (the index into `group.files`, or −1 − index when
  * the time is null or not finite), per key column read from the files its INTEGER ENUM code (−1 for null) or,
  * with `hash` coding, its UBIGINT hash, then `t` (x in `ticks` since the epoch, 0 when the time is unusable) and `y`
- * (DOUBLE, NaN for null). No column is ever NULL, so the reader needs no validity masks. With `slice`, only the
- * rows of that time slice. Pure.
+ * (DOUBLE, NaN for null). No column is ever NULL, so the reader needs no validity masks. Pure.
  */
 export function rowStreamSql(
   plan: MomentsPlan,
@@ -97,7 +86,6 @@ export function rowStreamSql(
   x: XStorage,
   ticks: 'ms' | 'us' | 'ns',
   coding: KeyCoding,
-  slice: XSlice | null = null,
 ): string {
   const col = quoteIdent(plan.x.column)
   let t: string
@@ -121,8 +109,7 @@ export function rowStreamSql(
   })
   inner.push(`CAST(${quoteIdent(plan.y.column)} AS DOUBLE) AS ss_y`)
   outer.push('COALESCE(ss_t, 0)', "COALESCE(ss_y, CAST('NaN' AS DOUBLE))")
-  const where = slice === null ? '' : ` WHERE ${xSliceSql(plan.x.column, plan.x.epochUnit, slice)}`
-  return `SELECT ${outer.join(', ')} FROM (SELECT ${inner.join(', ')} FROM ${groupScanSql(group, 'filename = true')}${where})`
+  return `SELECT ${outer.join(', ')} FROM (SELECT ${inner.join(', ')} FROM ${groupScanSql(group, 'filename = true')})`
 }
 
 /**
@@ -140,27 +127,10 @@ export interface StreamedGroup {
   readonly stats: readonly ReadStats[]
 }
 
-export interface RowStreamOptions {
-  /** Checked between chunks; a lane that fails stops the others. */
-  readonly signal?: AbortSignal
-  /** Gets the running row count about every million rows. */
-  readonly onRows?: (rows: number) => void
-  /**
-   * Time slices of whole windows (sql.ts `XSlice`, in time order), each read as its own stream; absent or null:
-   * one stream. A (file, series, window) then lies wholly in one slice and reaches the kernel in file order, so
-   * the sums are those of one stream, bit for bit.
-   */
-  readonly slices?: readonly XSlice[] | null
-  /** Streams read at once, each on its own connection (default 1). */
-  readonly lanes?: number
-}
-
 /**
  * Streams the rows of `group` through the kernel (see the module comment); `coding` says how the key columns read
- * from the files become codes. With `slices`, up to `lanes` streams run at once: one ordered stream keeps DuckDB to
- * about one decoding thread, while the kernel waits for it half of the time (10 M-row bench, 2 threads: read 2.0-2.7 s
- * as one stream). Returns null when a window came out of two slices (a bound that is not a window start: a bug),
- * so that the caller reads the group again as one stream.
+ * from the files become codes. Checks `signal` between chunks; `onRows` gets the running row count about every
+ * million rows.
  */
 export async function streamGroupRows(
   db: DuckDbSession,
@@ -169,64 +139,11 @@ export async function streamGroupRows(
   x: XStorage,
   ticks: 'ms' | 'us' | 'ns',
   coding: KeyCoding,
-  options: RowStreamOptions = {},
-): Promise<StreamedGroup | null> {
-  const slices = options.slices ?? [null]
-  const lanes = Math.max(1, Math.min(options.lanes ?? 1, slices.length))
-  const connections = [db.connection]
-  for (let i = 1; i < lanes; i++) connections.push(await db.connect())
-  let rows = 0
-  let reported = 0
-  const progress = {
-    failed: false,
-    add(n: number): void {
-      rows += n
-      if (rows - reported >= 1_000_000) {
-        reported = rows
-        options.onRows?.(rows)
-      }
-    },
-  }
-  const parts: StreamedGroup[] = new Array(slices.length)
-  let next = 0
-  let firstError: { readonly error: unknown } | null = null
-  await Promise.all(
-    connections.map(async (connection) => {
-      for (let i = next++; i < slices.length && !progress.failed; i = next++) {
-        try {
-          const sql = rowStreamSql(plan, group, x, ticks, coding, slices[i] ?? null)
-          parts[i] = await streamRows(connection, sql, plan, group, ticks, coding, options.signal, progress)
-        } catch (error) {
-          progress.failed = true
-          firstError ??= { error }
-          return
-        }
-      }
-    }),
-  )
-  if (firstError !== null) throw (firstError as { readonly error: unknown }).error
-  return parts.length === 1 ? (parts[0] as StreamedGroup) : joinSlices(parts, group.files.length)
-}
-
-/** Shared by the lanes of one group: the running row count, and whether a lane failed (the others then stop). */
-interface LaneProgress {
-  failed: boolean
-  add(rows: number): void
-}
-
-/** Reads one stream (`sql`, see `rowStreamSql`) through the kernel. */
-async function streamRows(
-  connection: DuckDBConnection,
-  sql: string,
-  plan: MomentsPlan,
-  group: RowStreamGroup,
-  ticks: 'ms' | 'us' | 'ns',
-  coding: KeyCoding,
   signal: AbortSignal | undefined,
-  progress: LaneProgress,
+  onRows?: (rows: number) => void,
 ): Promise<StreamedGroup> {
   const collect = youngCollector()
-  const result = await connection.stream(sql)
+  const result = await db.connection.stream(rowStreamSql(plan, group, x, ticks, coding))
   const dictionaries = coding.kind === 'enum' ? coding.dictionaries : [coding.dictionary]
   const hashCodes = new Int32Array(2048)
   const stats: ReadStats[] = group.files.map((f) => ({ file: f.path, rows: 0, skipped: 0 }))
@@ -234,10 +151,12 @@ async function streamRows(
   const keyCount = dictionaries.length
   let acc: CodedRowsAccumulator | null = null
   let chunks = 0
+  let rows = 0
+  let reported = 0
   // The next chunk is asked for before this one is added up: DuckDB then decodes while the kernel runs.
   let pending: Promise<DuckDBDataChunk | null> = result.fetchChunk()
   try {
-    while (!progress.failed) {
+    for (;;) {
       signal?.throwIfAborted()
       const chunk = await pending
       if (chunk === null || chunk.rowCount === 0) break
@@ -266,64 +185,19 @@ async function streamRows(
         st.rows += to - from
         from = to
       }
-      progress.add(length)
+      rows += length
+      if (rows - reported >= 1_000_000) {
+        reported = rows
+        onRows?.(rows)
+      }
       if (++chunks % collectEvery === 0) collect()
     }
   } finally {
-    // a fetch still in flight after an error, an abort or another lane's failure settles unobserved
+    // a fetch still in flight after an error or an abort settles unobserved
     pending.catch(() => undefined)
   }
   if (acc !== null) done[acc.fileIndex] = acc.finish()
   return { partials: done, stats }
-}
-
-/**
- * The streams of time slices (in time order) joined per file: counters added, partials in the order of one stream
- * (series id, then window start), each series' partials sharing one key array again. Null when a (series, window)
- * of a file came out of two slices.
- */
-export function joinSlices(parts: readonly StreamedGroup[], fileCount: number): StreamedGroup | null {
-  const partials: PartialMoments[][] = []
-  const stats: ReadStats[] = []
-  for (let f = 0; f < fileCount; f++) {
-    const all: PartialMoments[] = []
-    const st: ReadStats = { file: parts[0]?.stats[f]?.file ?? '', rows: 0, skipped: 0 }
-    for (const part of parts) {
-      for (const p of part.partials[f] ?? []) all.push(p)
-      st.rows += part.stats[f]?.rows ?? 0
-      st.skipped += part.stats[f]?.skipped ?? 0
-    }
-    stats.push(st)
-    const idOfKey = new Map<SeriesKey, string>()
-    const keyOfId = new Map<string, SeriesKey>()
-    const ids = all.map((p) => {
-      let id = idOfKey.get(p.key)
-      if (id === undefined) {
-        id = seriesId(p.key)
-        idOfKey.set(p.key, id)
-        if (!keyOfId.has(id)) keyOfId.set(id, p.key)
-      }
-      return id
-    })
-    // Stable on the arrival order: the slices come in time order, so one series' windows stay ascending.
-    const order = all
-      .map((_, i) => i)
-      .sort((a, b) => {
-        const ia = ids[a] as string
-        const ib = ids[b] as string
-        return ia < ib ? -1 : ia > ib ? 1 : a - b
-      })
-    const joined: PartialMoments[] = []
-    for (const i of order) {
-      const p = all[i] as PartialMoments
-      const key = keyOfId.get(ids[i] as string) as SeriesKey
-      const last = joined[joined.length - 1]
-      if (last !== undefined && last.key === key && last.windowStartMs >= p.windowStartMs) return null
-      joined.push(key === p.key ? p : { ...p, key })
-    }
-    partials.push(joined)
-  }
-  return { partials, stats }
 }
 
 type ValueArray = Int32Array | BigInt64Array | BigUint64Array | Float64Array

@@ -58,8 +58,8 @@ export interface ReadParquetOptions {
   /** Aborts between steps and interrupts a running query. */
   readonly signal?: AbortSignal
   /**
-   * Lag block only: rows per time slice of the SQL query, and the fewest rows per slice of the kernel's row streams
-   * (default `lagSliceRows`); `Infinity` turns slicing off. See `readParquetPartials`.
+   * Lag block only: rows per time slice (default `lagSliceRows`); `Infinity` turns slicing off. See
+   * `readParquetPartials`.
    */
   readonly sliceRows?: number
   /**
@@ -80,15 +80,6 @@ export interface ReadParquetOptions {
  * boundary row groups again). A window holding more rows than this is still one slice.
  */
 export const lagSliceRows = 1_000_000
-
-/**
- * Row streams read at once for the lag block (statistics.md §5.2), at most the engine's threads. Measured on the
- * 10 M-row bench (2 threads, 2 vCPUs, interleaved): in process the read took 2.04-2.39 s as one stream and
- * 1.94-2.01 s as two (CPU 2.4-2.9 s against 3.0-3.1 s: the row group at a slice bound is decoded twice), the
- * whole run 3.84-4.38 s against 3.62-4.14 s and 264-272 MB against 273-283 MB peak. More lanes are not measured
- * here (two vCPUs); each costs another bound's row group and another stream's buffers.
- */
-const maxStreamLanes = 2
 
 /** Largest read factor (rows read over all slices / rows in the files) at which slicing still pays. */
 const maxSliceReadFactor = 2.5
@@ -115,11 +106,10 @@ export interface ParquetPartials {
  *   only. A group made only of skipped rows yields a partial with n = 0.
  * - A file with zero rows yields no partials and `rows = 0`.
  * - Lag block: when the x column's row-group statistics show the files clustered in time, the scan runs
- *   in slices of whole windows (slices.ts `planTimeSlices`, sql.ts `XSlice`). The SQL query takes slices of
- *   about `sliceRows` rows, so that peak memory follows the slice, not the file; the kernel's row stream
- *   takes one slice per lane (at least `sliceRows` rows each), read at once. Results and counters are those
- *   of one scan either way (the same rows meet in the same groups, in file order). Should a
- *   (file, series, window) come out of two slices, the group is read again in one scan.
+ *   in slices of whole windows of about `sliceRows` rows (slices.ts `planTimeSlices`, sql.ts `XSlice`).
+ *   Peak memory then follows the slice, not the file; results and counters are those of one scan (the
+ *   same rows meet in the same groups). Should a (file, series, window) come out of two slices, the
+ *   group is read again in one scan.
  *
  * Errors: a needed column missing from a file → NoInputError (names the file, the column, the file's
  * columns and the config key to fix); y not numeric or x neither timestamp nor numeric, or a file
@@ -161,29 +151,14 @@ export async function readParquetPartials(
       if (ticks !== null) {
         const coding = (await keyHashCoding(db, plan, group, signal)) ?? (await enumCoding(db, await enumsOf()))
         if (coding !== null) {
-          const lanes = Math.min(options.threads, maxStreamLanes)
-          const slices =
-            lanes > 1
-              ? await lagSlices(db, group, plan, schemas, (total) =>
-                  Math.max(options.sliceRows ?? lagSliceRows, total / lanes),
-                )
-              : null
-          const before = rowsSoFar(stats)
-          const stream = (sliced: readonly XSlice[] | null) =>
-            streamGroupRows(db, plan, group, x, ticks, coding, {
-              slices: sliced,
-              lanes,
-              ...(signal ? { signal } : {}),
-              onRows: (n) => options.onRows?.(before + n),
-            })
           let got: StreamedGroup
           try {
-            // A window found in two slices would mean the slices and the kernel disagree on a window bound: one stream.
-            got = (await stream(slices)) ?? ((await stream(null)) as StreamedGroup)
+            const before = rowsSoFar(stats)
+            got = await streamGroupRows(db, plan, group, x, ticks, coding, signal, (n) => options.onRows?.(before + n))
           } catch (err) {
             throw scanError(err, group.files, signal)
           }
-          scans += slices?.length ?? 1
+          scans++
           got.stats.forEach((st, i) => {
             const total = stats.get(st.file)
             if (total !== undefined) {
@@ -208,7 +183,7 @@ export async function readParquetPartials(
         ...(keyTypes.length === 0 ? {} : { keyEnums: keyTypes }),
       }
       const sliceRows = options.sliceRows ?? lagSliceRows
-      const slices = lag ? await lagSlices(db, group, plan, schemas, () => sliceRows) : null
+      const slices = lag ? await lagSlices(db, group, plan, schemas, sliceRows) : null
       let got = slices === null ? null : await scanGroup(db, plan, group, source, slices, signal)
       scans += slices?.length ?? 0
       if (got === null) {
@@ -285,8 +260,9 @@ async function lagSlices(
   group: FileGroup,
   plan: MomentsPlan,
   schemas: Map<string, FileSchema>,
-  rowsPerSlice: (totalRows: number) => number,
+  targetRows: number,
 ): Promise<XSlice[] | null> {
+  if (!(targetRows < Number.POSITIVE_INFINITY) || targetRows < 1) return null
   const types = new Set(group.files.map((f) => schemas.get(f.path)?.get(plan.x.column)))
   const [column] = types
   if (types.size !== 1 || column === undefined) return null
@@ -306,9 +282,6 @@ async function lagSlices(
     minMs: num(lo),
     maxMs: num(hi),
   }))
-  const total = spans.reduce((sum, g) => sum + (g.rows > 0 ? g.rows : 0), 0)
-  const targetRows = Math.ceil(rowsPerSlice(total))
-  if (!(targetRows < Number.POSITIVE_INFINITY) || targetRows < 1) return null
   const slices = planTimeSlices(plan.window, spans, { targetRows, maxReadFactor: maxSliceReadFactor })
   if (slices === null) return null
   for (const s of slices) {

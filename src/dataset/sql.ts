@@ -149,26 +149,6 @@ function sliceBound(column: string, epochUnit: Ticks, ms: number): string | null
   return null
 }
 
-/**
- * The SQL predicate that keeps the rows of `slice` (see `XSlice`), on x column `column` (unquoted) stored in
- * `epochUnit` (numbers only). Throws a RangeError for a bound that does not fit (`sliceBoundsFit`).
- */
-export function xSliceSql(column: string, epochUnit: Ticks, slice: XSlice): string {
-  const col = quoteIdent(column)
-  const bound = (ms: number) => {
-    const b = sliceBound(slice.column, epochUnit, ms)
-    if (b === null) throw new RangeError(`slice bound ${ms} does not fit an x column of type ${slice.column}`)
-    return b
-  }
-  const parts: string[] = []
-  if (slice.fromMs !== null) parts.push(`${col} >= ${bound(slice.fromMs)}`)
-  if (slice.toMs !== null) {
-    const below = `${col} < ${bound(slice.toMs)}`
-    parts.push(slice.fromMs === null ? `(${below} OR ${col} IS NULL)` : below)
-  }
-  return parts.length === 0 ? 'TRUE' : parts.join(' AND ')
-}
-
 /** The output columns, in order, of the moments query (`keys` are the key columns the SQL groups by). */
 export interface MomentsQuery {
   readonly sql: string
@@ -390,7 +370,19 @@ class Gen {
 
   /** The `XSlice` predicate on the stored x column. */
   private sliceFilter(slice: XSlice): string {
-    return xSliceSql(this.plan.x.column, this.plan.x.epochUnit, slice)
+    const col = quoteIdent(this.plan.x.column)
+    const bound = (ms: number) => {
+      const b = sliceBound(slice.column, this.plan.x.epochUnit, ms)
+      if (b === null) throw new RangeError(`slice bound ${ms} does not fit an x column of type ${slice.column}`)
+      return b
+    }
+    const parts: string[] = []
+    if (slice.fromMs !== null) parts.push(`${col} >= ${bound(slice.fromMs)}`)
+    if (slice.toMs !== null) {
+      const below = `${col} < ${bound(slice.toMs)}`
+      parts.push(slice.fromMs === null ? `(${below} OR ${col} IS NULL)` : below)
+    }
+    return parts.length === 0 ? 'TRUE' : parts.join(' AND ')
   }
 
   /** x column → integer ticks (timestamps) or the raw number (epoch); NULL when not finite. */

@@ -95,16 +95,6 @@ async function expectKernelMatchesSql(files: SourceFile[], plan: MomentsPlan): P
   return kernel
 }
 
-/** The partials of one (file, series) share one key array, as one stream gives them (the reader finds runs by it). */
-function expectOneKeyArrayPerSeries(read: ParquetPartials): void {
-  const first = new Map<string, unknown>()
-  for (const p of read.partials) {
-    const id = `${p.file} ${JSON.stringify(p.key)}`
-    if (!first.has(id)) first.set(id, p.key)
-    expect(p.key).toBe(first.get(id))
-  }
-}
-
 describe('readParquetPartials with the lag block through the kernel', () => {
   const hourly = parseWindow('1h') as WindowSpec
 
@@ -211,33 +201,6 @@ describe('readParquetPartials with the lag block through the kernel', () => {
     const four = await readParquetPartials([f], planFor(hourly), { threads: 4 })
     expect(four.partials).toEqual(one.partials)
     expect(four.stats).toEqual(one.stats)
-  })
-
-  it('reads time slices as parallel streams to exactly the partials and counters of one stream', async () => {
-    // Two files of consecutive spans, sorted in time (the swapped rows stay inside their window), with null and
-    // infinite timestamps in the last row group of the second; the slice bound falls inside the first file.
-    const a = await write('lanes-a.parquet', feed(day0, 16, 3000, 41, false), tsSelect('TIMESTAMP'))
-    const b = await write('lanes-b.parquet', feed(day0 + 16 * hour, 8, 3000, 43, true), tsSelect('TIMESTAMP'))
-    const plan = planFor(hourly)
-    const one = await readParquetPartials([a, b], plan, { threads: 2, sliceRows: Number.POSITIVE_INFINITY })
-    const lanes = await readParquetPartials([a, b], plan, { threads: 2, sliceRows: 10_000 })
-    expect(one.scans).toBe(1)
-    expect(lanes.scans).toBeGreaterThan(1)
-    expect(lanes.stats).toEqual(one.stats)
-    expect(lanes.partials).toEqual(one.partials)
-    expectOneKeyArrayPerSeries(lanes)
-    // one thread: one stream whatever the slice size
-    expect((await readParquetPartials([a, b], plan, { threads: 1, sliceRows: 10_000 })).scans).toBe(1)
-  })
-
-  it('reads integer epoch milliseconds in parallel slices like one stream', async () => {
-    const f = await write('lanes-epoch.parquet', feed(day0, 24, 3000, 47, false), 'site, unit, ts_ms AS ts, power_kw')
-    const plan = planFor(hourly, { epochUnit: 'ms' })
-    const one = await readParquetPartials([f], plan, { threads: 2, sliceRows: Number.POSITIVE_INFINITY })
-    const lanes = await readParquetPartials([f], plan, { threads: 2, sliceRows: 10_000 })
-    expect(lanes.scans).toBeGreaterThan(1)
-    expect(lanes).toEqual({ ...one, scans: lanes.scans })
-    expectOneKeyArrayPerSeries(lanes)
   })
 
   it('leaves DOUBLE epochs and weighted plans to the SQL query', async () => {
