@@ -27,6 +27,9 @@ export const rssMethod = existsSync(gnuTime)
 export interface ProcessRun {
   /** Wall time from spawn to exit, measured by the parent with performance.now(). */
   readonly wallMs: number
+  /** Epoch ms (Date.now()) just before the spawn and at exit: to place the child's own log times. */
+  readonly startedAtMs: number
+  readonly endedAtMs: number
   /** Peak resident set size of the child, MB (1 MB = 1024 kB as GNU time reports kB). */
   readonly peakRssMb: number | null
   /** User + system CPU seconds of the child (GNU time); less sensitive to a busy machine than wall time. */
@@ -53,6 +56,7 @@ export async function runProcess(
   const argv = useTime ? ['-v', command, ...args] : [...args]
   const exe = useTime ? gnuTime : command
   const load1 = loadavg()[0] ?? 0
+  const startedAtMs = Date.now()
   const started = performance.now()
   const child = spawn(exe, argv, {
     cwd: options.cwd ?? projectRoot,
@@ -79,6 +83,7 @@ export async function runProcess(
   })
   if (timer !== null) clearTimeout(timer)
   const wallMs = performance.now() - started
+  const endedAtMs = Date.now()
   let stderr = Buffer.concat(err).toString('utf8')
   let peakRssMb: number | null = null
   let cpuS: number | null = null
@@ -96,7 +101,8 @@ export async function runProcess(
     const sys = /System time \(seconds\): ([\d.]+)/.exec(report)?.[1]
     if (user !== undefined && sys !== undefined) cpuS = Number(user) + Number(sys)
   }
-  return { wallMs, peakRssMb, cpuS, load1, exitCode, timedOut, stdout: Buffer.concat(out).toString('utf8'), stderr }
+  const stdout = Buffer.concat(out).toString('utf8')
+  return { wallMs, startedAtMs, endedAtMs, peakRssMb, cpuS, load1, exitCode, timedOut, stdout, stderr }
 }
 
 /** Median of a non-empty list. */

@@ -60,6 +60,77 @@ function stageMs(stderr: string, messages: readonly string[]): number | null {
   return null
 }
 
+/**
+ * Where one whole process spent its wall time, ms: up to the engine ready (`startup`), the scan (`read`: slopeshift's
+ * read stage, the baseline's query and write), what came after it up to the last log line or result (`after`), and
+ * from there to the parent seeing the exit (`exit`: engine close, process teardown). `stages`: slopeshift's
+ * debug stage timings after the read.
+ */
+export interface Phases {
+  readonly startup: number
+  readonly read: number
+  readonly after: number
+  readonly exit: number
+  readonly stages: Readonly<Record<string, number>>
+}
+
+/** The phases of a `slopeshift run` from its pino log lines (debug level) and the parent's spawn and exit times. */
+export function cliPhases(stderr: string, startedAtMs: number, endedAtMs: number): Phases | null {
+  const at = new Map<string, number>()
+  const stages: Record<string, number> = {}
+  for (const line of stderr.split('\n')) {
+    if (!line.startsWith('{')) continue
+    try {
+      const v = JSON.parse(line) as { msg?: unknown; time?: unknown; stage?: unknown; durationMs?: unknown }
+      if (typeof v.msg !== 'string' || typeof v.time !== 'number') continue
+      if (!at.has(v.msg)) at.set(v.msg, v.time)
+      if (v.msg === 'stage finished' && typeof v.stage === 'string' && typeof v.durationMs === 'number') {
+        stages[v.stage] = v.durationMs
+      }
+    } catch {
+      // not a log line
+    }
+  }
+  const started = at.get('run started')
+  const planned = at.get('files planned')
+  const read = at.get('parquet files read')
+  const committed = at.get('run committed')
+  if (started === undefined || planned === undefined || read === undefined || committed === undefined) return null
+  return {
+    startup: started - startedAtMs,
+    read: read - planned,
+    after: committed - read,
+    exit: endedAtMs - committed,
+    stages,
+  }
+}
+
+/** The median of each phase over runs (stages: of those every run has). */
+function medianPhases(all: readonly Phases[]): Phases | null {
+  if (all.length === 0) return null
+  const pick = (f: (p: Phases) => number) => median(all.map(f))
+  const stages: Record<string, number> = {}
+  for (const name of Object.keys(all[0]?.stages ?? {})) {
+    if (all.every((p) => p.stages[name] !== undefined)) stages[name] = pick((p) => p.stages[name] as number)
+  }
+  return {
+    startup: pick((p) => p.startup),
+    read: pick((p) => p.read),
+    after: pick((p) => p.after),
+    exit: pick((p) => p.exit),
+    stages,
+  }
+}
+
+/** One measured process: its run, the rows it read, its error, extras for results.json, and its phases. */
+interface RunRecord {
+  readonly run: ProcessRun
+  readonly rows: number | null
+  readonly error: string | null
+  readonly extra?: Record<string, unknown>
+  readonly phases?: Phases | null
+}
+
 /** Aggregate of the reps of one variant. */
 export interface VariantResult {
   readonly label: string
@@ -76,13 +147,11 @@ export interface VariantResult {
   readonly medianLoad1: number
   readonly inProcessMs?: number | null
   readonly extra?: Record<string, unknown>
+  /** Median phases over the reps (null when a rep gave none). */
+  readonly phases: Phases | null
 }
 
-function aggregate(
-  label: string,
-  input: string,
-  runs: readonly { run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }[],
-): VariantResult {
+function aggregate(label: string, input: string, runs: readonly RunRecord[]): VariantResult {
   const good = runs.filter((r) => r.error === null)
   const wallS = good.map((r) => r.run.wallMs / 1000)
   const rows = good[0]?.rows ?? null
@@ -102,6 +171,7 @@ function aggregate(
     peakRssMb: maxOrNull(good.map((r) => r.run.peakRssMb)),
     medianLoad1: median(runs.map((r) => r.run.load1)),
     ...(good[0]?.extra ? { extra: good[0].extra } : {}),
+    phases: good.every((r) => r.phases) ? medianPhases(good.map((r) => r.phases as Phases)) : null,
   }
 }
 
@@ -127,12 +197,12 @@ async function writeConfig(
 }
 
 /** One whole-process `slopeshift run --json --full` on a fresh output root. */
-async function runCli(
-  config: string,
-  root: string,
-): Promise<{ run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }> {
+async function runCli(config: string, root: string): Promise<RunRecord> {
   await rm(root, { recursive: true, force: true })
-  const run = await runProcess(process.execPath, [cliPath, 'run', '--config', config, '--json', '--full'])
+  // Debug level for the stage timings (a dozen more log lines).
+  const run = await runProcess(process.execPath, [cliPath, 'run', '--config', config, '--json', '--full'], {
+    env: { ...process.env, SLOPESHIFT_LOG_LEVEL: 'debug' },
+  })
   const s = parseSummary(run.stdout)
   const readMs = stageMs(run.stderr, ['parquet files read'])
   if (run.exitCode !== 0 || s === null) {
@@ -150,14 +220,12 @@ async function runCli(
       shifts: s.shifts,
       rowsSkipped: s.rows.skipped,
     },
+    phases: cliPhases(run.stderr, run.startedAtMs, run.endedAtMs),
   }
 }
 
 /** One whole-process run of the hand-written DuckDB query. */
-async function runBaseline(
-  input: MetricsInput,
-  threads: number,
-): Promise<{ run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }> {
+async function runBaseline(input: MetricsInput, threads: number): Promise<RunRecord> {
   const out = path.join(benchDir, 'work', 'throughput', `baseline-${input.name}.parquet`)
   await rm(out, { force: true })
   const script = path.join(projectRoot, 'test', 'bench', 'duckdb-regr.mjs')
@@ -168,10 +236,20 @@ async function runBaseline(
     rowsInFile: number
     groups: number
     pointsUsed: number
+    importMs: number
     engineLoadMs: number
     queryAndWriteMs: number
+    checksMs: number
   }
-  return { run, rows: r.rowsInFile, error: null, extra: r }
+  const startup = r.importMs + r.engineLoadMs
+  const phases: Phases = {
+    startup,
+    read: r.queryAndWriteMs,
+    after: r.checksMs,
+    exit: run.wallMs - startup - r.queryAndWriteMs - r.checksMs,
+    stages: {},
+  }
+  return { run, rows: r.rowsInFile, error: null, extra: r, phases }
 }
 
 /** One fresh process that reads the Arrow file `reps` times with the built reader. */
@@ -311,6 +389,27 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
         fmt(r.ratio, 2),
         fmt(r.cpuRatio, 2),
       ]),
+    )
+  }
+
+  const phased = [...cli, ...baseline].filter((v) => v.phases !== null)
+  if (phased.length > 0) {
+    printTable(
+      'where the wall time goes, ms (median of reps): start-up to engine ready, the scan (slopeshift: read stage; hand-written: query and write), after it (slopeshift: stages to the commit; hand-written: its row checks), exit',
+      ['whole process', 'start-up', 'scan', 'after', 'exit', 'stages after the scan'],
+      phased.map((v) => {
+        const p = v.phases as Phases
+        return [
+          v.label,
+          fmt(p.startup, 0),
+          fmt(p.read, 0),
+          fmt(p.after, 0),
+          fmt(p.exit, 0),
+          Object.entries(p.stages)
+            .map(([name, ms]) => `${name} ${fmt(ms, 0)}`)
+            .join(', '),
+        ]
+      }),
     )
   }
 
