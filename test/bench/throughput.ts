@@ -1,7 +1,8 @@
 /**
  * Issue 2: whole-process throughput of `slopeshift run` on the 10 M-row inputs (hourly windows,
  * xUnit minute, 2 engine threads, serial off and ar1), the hand-written DuckDB REGR_* baseline on
- * the same Parquet files, and the Arrow reader's in-process pass. Every figure is a fresh process
+ * the same Parquet files (two forms: integer window arithmetic, the ratio's reference, and date_trunc
+ * for context), and the Arrow reader's in-process pass. Every figure is a fresh process
  * spawned under /usr/bin/time (wall time from the parent, peak RSS and CPU from GNU time); reps
  * are interleaved so a burst of load on the shared machine hits every variant alike.
  */
@@ -224,12 +225,24 @@ async function runCli(config: string, root: string): Promise<RunRecord> {
   }
 }
 
+/**
+ * The forms of the hand-written query (duckdb-regr.mjs): `integer`, window and x by integer arithmetic (the ratio's
+ * reference, the fastest form known), and `date_trunc`, the form written from the SQL manual.
+ */
+const baselineForms = ['integer', 'date_trunc'] as const
+type BaselineForm = (typeof baselineForms)[number]
+
+/** The bench label of the hand-written query's run on `input` in `form`. */
+function baselineLabel(input: string, form: BaselineForm): string {
+  return form === 'integer' ? `hand-written DuckDB ${input}` : `hand-written DuckDB ${input} (date_trunc)`
+}
+
 /** One whole-process run of the hand-written DuckDB query. */
-async function runBaseline(input: MetricsInput, threads: number): Promise<RunRecord> {
-  const out = path.join(benchDir, 'work', 'throughput', `baseline-${input.name}.parquet`)
+async function runBaseline(input: MetricsInput, threads: number, form: BaselineForm): Promise<RunRecord> {
+  const out = path.join(benchDir, 'work', 'throughput', `baseline-${input.name}-${form}.parquet`)
   await rm(out, { force: true })
   const script = path.join(projectRoot, 'test', 'bench', 'duckdb-regr.mjs')
-  const run = await runProcess(process.execPath, [script, input.path, String(threads), out])
+  const run = await runProcess(process.execPath, [script, input.path, String(threads), out, form])
   if (run.exitCode !== 0)
     return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
   const r = JSON.parse(lastLine(run.stdout)) as {
@@ -286,6 +299,9 @@ export interface ThroughputResult {
     ratio: number | null
     /** hand-written CPU s ÷ slopeshift CPU s (whole processes): the ratio with other load on the machine factored out. */
     cpuRatio: number | null
+    /** The same against the `date_trunc` form of the hand-written query (context; the ratio above is the reference). */
+    dateTruncRowsPerS: number | null
+    ratioVsDateTrunc: number | null
   }[]
   readonly arrowInProcess: {
     readonly input: string
@@ -313,6 +329,7 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
     input: MetricsInput
     serial: Serial | null
     config?: { config: string; root: string }
+    form?: BaselineForm
   }[] = []
   for (const input of inputs) {
     for (const serial of serialModes) {
@@ -323,13 +340,18 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
         config: await writeConfig(input, serial, opts.threads),
       })
     }
-    if (input.format === 'parquet') variants.push({ key: `hand-written DuckDB ${input.name}`, input, serial: null })
+    if (input.format === 'parquet') {
+      for (const form of baselineForms)
+        variants.push({ key: baselineLabel(input.name, form), input, serial: null, form })
+    }
   }
   const runs = new Map<string, Awaited<ReturnType<typeof runCli>>[]>()
   for (let rep = 0; rep < opts.reps; rep++) {
     for (const v of variants) {
       const r =
-        v.config !== undefined ? await runCli(v.config.config, v.config.root) : await runBaseline(v.input, opts.threads)
+        v.config !== undefined
+          ? await runCli(v.config.config, v.config.root)
+          : await runBaseline(v.input, opts.threads, v.form ?? 'integer')
       const list = runs.get(v.key) ?? []
       list.push(r)
       runs.set(v.key, list)
@@ -346,7 +368,8 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
   }
   const ratios: ThroughputResult['ratios'] = []
   for (const input of inputs.filter((i) => i.format === 'parquet')) {
-    const base = baseline.find((b) => b.input === input.name)
+    const base = baseline.find((b) => b.label === baselineLabel(input.name, 'integer'))
+    const plain = baseline.find((b) => b.label === baselineLabel(input.name, 'date_trunc'))
     for (const serial of serialModes) {
       const mine = cli.find((c) => c.input === input.name && c.label.endsWith(`serial ${serial}`))
       const a = mine?.rowsPerS ?? null
@@ -360,6 +383,8 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
         handWrittenRowsPerS: b,
         ratio: a !== null && b !== null ? a / b : null,
         cpuRatio: ca !== null && cb !== null && ca > 0 ? cb / ca : null,
+        dateTruncRowsPerS: plain?.rowsPerS ?? null,
+        ratioVsDateTrunc: a !== null && plain?.rowsPerS ? a / plain.rowsPerS : null,
       })
     }
   }
@@ -379,8 +404,17 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
   )
   if (ratios.length > 0) {
     printTable(
-      'ratio = slopeshift rows/s ÷ hand-written DuckDB REGR_* rows/s (same file, same threads, whole processes)',
-      ['input', 'serial', 'slopeshift M rows/s', 'hand-written M rows/s', 'ratio (wall)', 'ratio (CPU s)'],
+      'ratio = slopeshift rows/s ÷ hand-written DuckDB REGR_* rows/s (same file, same threads, whole processes; the reference is the integer-arithmetic form, the date_trunc form is context)',
+      [
+        'input',
+        'serial',
+        'slopeshift M rows/s',
+        'hand-written M rows/s',
+        'ratio (wall)',
+        'ratio (CPU s)',
+        'date_trunc form M rows/s',
+        'ratio vs date_trunc form',
+      ],
       ratios.map((r) => [
         r.input,
         r.serial,
@@ -388,6 +422,8 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
         fmt((r.handWrittenRowsPerS ?? Number.NaN) / 1e6, 2),
         fmt(r.ratio, 2),
         fmt(r.cpuRatio, 2),
+        fmt((r.dateTruncRowsPerS ?? Number.NaN) / 1e6, 2),
+        fmt(r.ratioVsDateTrunc, 2),
       ]),
     )
   }
