@@ -47,17 +47,32 @@ export function parseSummary(stdout: string): SummaryFields | null {
   return null
 }
 
-/** `durationMs` of the first pino log line whose message is one of `messages`; null when absent. */
-function stageMs(stderr: string, messages: readonly string[]): number | null {
+/** The fields the bench reads from one pino log line. */
+interface LogRecord {
+  readonly msg: string
+  readonly time?: unknown
+  readonly stage?: unknown
+  readonly durationMs?: unknown
+}
+
+/** The pino log lines of a child's stderr, in order (other lines skipped). */
+function logRecords(stderr: string): LogRecord[] {
+  const out: LogRecord[] = []
   for (const line of stderr.split('\n')) {
     if (!line.startsWith('{')) continue
     try {
-      const v = JSON.parse(line) as { msg?: unknown; durationMs?: unknown }
-      if (typeof v.msg === 'string' && messages.includes(v.msg) && typeof v.durationMs === 'number') return v.durationMs
+      const v = JSON.parse(line) as { msg?: unknown }
+      if (typeof v.msg === 'string') out.push(v as LogRecord)
     } catch {
       // not a log line
     }
   }
+  return out
+}
+
+/** `durationMs` of the first log record whose message is one of `messages`; null when absent. */
+function stageMs(records: readonly LogRecord[], messages: readonly string[]): number | null {
+  for (const r of records) if (messages.includes(r.msg) && typeof r.durationMs === 'number') return r.durationMs
   return null
 }
 
@@ -75,21 +90,15 @@ export interface Phases {
   readonly stages: Readonly<Record<string, number>>
 }
 
-/** The phases of a `slopeshift run` from its pino log lines (debug level) and the parent's spawn and exit times. */
-export function cliPhases(stderr: string, startedAtMs: number, endedAtMs: number): Phases | null {
+/** The phases of a `slopeshift run` from its log records (debug level) and the parent's spawn and exit times. */
+function cliPhases(records: readonly LogRecord[], startedAtMs: number, endedAtMs: number): Phases | null {
   const at = new Map<string, number>()
   const stages: Record<string, number> = {}
-  for (const line of stderr.split('\n')) {
-    if (!line.startsWith('{')) continue
-    try {
-      const v = JSON.parse(line) as { msg?: unknown; time?: unknown; stage?: unknown; durationMs?: unknown }
-      if (typeof v.msg !== 'string' || typeof v.time !== 'number') continue
-      if (!at.has(v.msg)) at.set(v.msg, v.time)
-      if (v.msg === 'stage finished' && typeof v.stage === 'string' && typeof v.durationMs === 'number') {
-        stages[v.stage] = v.durationMs
-      }
-    } catch {
-      // not a log line
+  for (const v of records) {
+    if (typeof v.time !== 'number') continue
+    if (!at.has(v.msg)) at.set(v.msg, v.time)
+    if (v.msg === 'stage finished' && typeof v.stage === 'string' && typeof v.durationMs === 'number') {
+      stages[v.stage] = v.durationMs
     }
   }
   const started = at.get('run started')
@@ -205,7 +214,8 @@ async function runCli(config: string, root: string): Promise<RunRecord> {
     env: { ...process.env, SLOPESHIFT_LOG_LEVEL: 'debug' },
   })
   const s = parseSummary(run.stdout)
-  const readMs = stageMs(run.stderr, ['parquet files read'])
+  const records = logRecords(run.stderr)
+  const readMs = stageMs(records, ['parquet files read'])
   if (run.exitCode !== 0 || s === null) {
     return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
   }
@@ -221,7 +231,7 @@ async function runCli(config: string, root: string): Promise<RunRecord> {
       shifts: s.shifts,
       rowsSkipped: s.rows.skipped,
     },
-    phases: cliPhases(run.stderr, run.startedAtMs, run.endedAtMs),
+    phases: cliPhases(records, run.startedAtMs, run.endedAtMs),
   }
 }
 

@@ -52,6 +52,26 @@ function waitingForLock(root: string, pid: number | undefined): Promise<boolean>
   )
 }
 
+/**
+ * A first run of `config` paused while it holds the lock of `root`, and a second one waiting for it (`--lock-wait 60`);
+ * `meanwhile` runs once the second waits, then the first resumes.
+ */
+async function holderAndWaiter(
+  config: string,
+  root: string,
+  meanwhile: () => Promise<void> = async () => undefined,
+): Promise<{ first: ReturnType<typeof spawnCli>; second: ReturnType<typeof spawnCli> }> {
+  const first = await pausedHolder(config)
+  const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
+  try {
+    expect(await waitingForLock(root, second.child.pid), 'second run never started waiting for the lock').toBe(true)
+    await meanwhile()
+  } finally {
+    first.child.kill('SIGCONT')
+  }
+  return { first, second }
+}
+
 describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'built CLI' : noCliReason})`, () => {
   it('exits 75 and names the holder when another run holds the lock and --lock-wait is 0', async () => {
     const root = path.join(base, 'no-wait')
@@ -80,13 +100,7 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
   it('waits with --lock-wait, then finds nothing to do', async () => {
     const root = path.join(base, 'wait')
     const config = await writeJobConfig(path.join(base, 'wait.json'), { paths: [lake], root })
-    const first = await pausedHolder(config)
-    const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
-    try {
-      expect(await waitingForLock(root, second.child.pid), 'second run never started waiting for the lock').toBe(true)
-    } finally {
-      first.child.kill('SIGCONT')
-    }
+    const { first, second } = await holderAndWaiter(config, root)
     const done = await first.result
     expect(done.code, describeResult(done)).toBe(0)
     expect(done.summary?.files.read).toBe(days)
@@ -107,16 +121,11 @@ describe.skipIf(!hasBuiltCli)(`run lock between two CLI runs (${hasBuiltCli ? 'b
     for (let day = 0; day < days; day++) await writeDay(ownLake, day)
     const root = path.join(base, 'wait-late')
     const config = await writeJobConfig(path.join(base, 'wait-late.json'), { paths: [ownLake], root })
-    const first = await pausedHolder(config)
-    // The waiter's entry lists the lake before it waits (early discovery); the day added below is not in it.
-    const second = spawnCli(['run', '--config', config, '--json', '--lock-wait', '60'])
-    try {
-      expect(await waitingForLock(root, second.child.pid), 'second run never started waiting for the lock').toBe(true)
+    // The waiter's entry lists the lake before it waits (early discovery); the day added meanwhile is not in it.
+    const { first, second } = await holderAndWaiter(config, root, async () => {
       await writeDay(ownLake, days)
       await new Promise((resolve) => setTimeout(resolve, 1200)) // past the wait after which a listing is stale
-    } finally {
-      first.child.kill('SIGCONT')
-    }
+    })
     const done = await first.result
     expect(done.code, describeResult(done)).toBe(0)
     const waited = await second.result
