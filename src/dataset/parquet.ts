@@ -69,6 +69,22 @@ export interface ReadParquetOptions {
   readonly lagEngine?: 'kernel' | 'sql'
   /** Called with the running total of rows read while rows stream through the kernel (about every million rows). */
   readonly onRows?: (rows: number) => void
+  /**
+   * Called about every `scanProgressMs` while the `REGR_*` (or window) scans run, with how far they are over all the
+   * files, 0 … 1 (DuckDB's estimate from the rows its scans have read), never backwards, and with 1 when a scan is
+   * done; those scans count no rows as they go.
+   */
+  readonly onScan?: (fraction: number) => void
+  /** How often a running scan's progress is asked for (ms, default 250). */
+  readonly scanProgressMs?: number
+}
+
+/** Where a running scan reports how far it is (see `ReadParquetOptions.onScan`). */
+interface ScanProgress {
+  /** Poll interval, ms. */
+  readonly every: number
+  /** Gets how far this scan is, 0 … 1. */
+  readonly report: (fraction: number) => void
 }
 
 /**
@@ -125,6 +141,7 @@ export async function readParquetPartials(
   if (files.length === 0) return { partials: [], stats: [], scans: 0 }
   const db = await openDuckDb({
     threads: options.threads,
+    trackProgress: options.onScan !== undefined,
     ...(options.memoryLimit === undefined ? {} : { memoryLimit: options.memoryLimit }),
     ...(options.tempDirectory === undefined ? {} : { tempDirectory: options.tempDirectory }),
   })
@@ -137,8 +154,15 @@ export async function readParquetPartials(
     const lag = plan.trackLag && plan.weight === null
     let scan = 0
     let scans = 0
-    for (const group of groupByFileKeys(files, plan)) {
+    const groups = groupByFileKeys(files, plan)
+    for (const [g, group] of groups.entries()) {
       signal?.throwIfAborted()
+      const onScan = options.onScan
+      // the share of this group: groups count alike, whatever their size
+      const scanned: ScanProgress | undefined =
+        onScan === undefined
+          ? undefined
+          : { every: options.scanProgressMs ?? 250, report: (f) => onScan((g + f) / groups.length) }
       const x = checkColumns(group.files, plan, schemas)
       // ENUM types for the key columns (the SQL lag sort's and weighted join's keys, the row stream's codes
       // when hashes will not do), made at most once per file set
@@ -184,11 +208,11 @@ export async function readParquetPartials(
       }
       const sliceRows = options.sliceRows ?? lagSliceRows
       const slices = lag ? await lagSlices(db, group, plan, schemas, sliceRows) : null
-      let got = slices === null ? null : await scanGroup(db, plan, group, source, slices, signal)
+      let got = slices === null ? null : await scanGroup(db, plan, group, source, slices, signal, scanned)
       scans += slices?.length ?? 0
       if (got === null) {
         // A window found in two slices would mean the SQL and the kernel disagree on a window bound: one scan.
-        got = await scanGroup(db, plan, group, source, [null], signal)
+        got = await scanGroup(db, plan, group, source, [null], signal, scanned)
         scans++
       }
       if (got === null) throw new Error('one scan cannot yield a window twice')
@@ -222,13 +246,23 @@ async function scanGroup(
   source: SqlSource & { kind: 'parquet' },
   slices: readonly (XSlice | null)[],
   signal: AbortSignal | undefined,
+  progress?: ScanProgress,
 ): Promise<{ runs: SeriesRun[]; stats: Map<string, ReadStats> } | null> {
   const stats = new Map<string, ReadStats>(group.files.map((f) => [f.path, { file: f.path, rows: 0, skipped: 0 }]))
   const pieces: SeriesRun[] = []
-  for (const slice of slices) {
+  for (const [i, slice] of slices.entries()) {
     signal?.throwIfAborted()
     const q = momentsQuery(plan, slice === null ? source : { ...source, slice }, 'duckdb')
-    const result = await runScan(db, wrapQuery(q.sql, q.columns.length, q.keys.length), group.files, signal)
+    const sql = wrapQuery(q.sql, q.columns.length, q.keys.length)
+    const result = await runScan(
+      db,
+      sql,
+      group.files,
+      signal,
+      progress === undefined
+        ? undefined
+        : { every: progress.every, report: (f) => progress.report((i + f) / slices.length) },
+    )
     signal?.throwIfAborted()
     collect(result, plan, q.keys, group.files, stats, pieces)
   }
@@ -545,11 +579,28 @@ async function runScan(
   sql: string,
   files: readonly SourceFile[],
   signal: AbortSignal | undefined,
+  progress?: ScanProgress,
 ): Promise<DuckDBMaterializedResult> {
+  // While the query runs on DuckDB's threads this one is free: ask how far it is now and then (never backwards).
+  let shown = -1
+  const poll =
+    progress === undefined
+      ? null
+      : setInterval(() => {
+          const f = db.progress()
+          if (f !== null && f > shown) {
+            shown = f
+            progress.report(f)
+          }
+        }, progress.every)
   try {
-    return await db.run(sql)
+    const result = await db.run(sql)
+    progress?.report(1)
+    return result
   } catch (err) {
     throw scanError(err, files, signal)
+  } finally {
+    if (poll !== null) clearInterval(poll)
   }
 }
 

@@ -16,6 +16,8 @@ export interface ReadOptions {
   readonly log: Logger
   /** Called with the running total of rows read, at least once per file. */
   readonly onRows?: (rows: number) => void
+  /** Called now and then during a Parquet scan that counts no rows as it goes, with how far it is (0 … 1). */
+  readonly onScan?: (fraction: number) => void
 }
 
 export interface ReadResult {
@@ -42,6 +44,7 @@ export async function readPartials(
       ...(options.tempDirectory === undefined ? {} : { tempDirectory: options.tempDirectory }),
       ...(options.signal ? { signal: options.signal } : {}),
       ...(options.onRows ? { onRows: options.onRows } : {}),
+      ...(options.onScan ? { onScan: options.onScan } : {}),
     })
     partials.push(...r.partials)
     stats.push(...r.stats)

@@ -73,6 +73,8 @@ export interface RunDeps {
   readonly signal?: AbortSignal
   /** Called with the running total of rows read (progress display). */
   readonly onRows?: (rows: number) => void
+  /** Called with how far a Parquet scan that counts no rows as it goes is, 0 … 1 (progress display). */
+  readonly onScan?: (fraction: number) => void
   /** Test hook: the fetch used for webhooks (default global fetch). */
   readonly fetch?: typeof fetch
   /**
@@ -202,6 +204,7 @@ async function runLocked(
     log,
     ...(signal ? { signal } : {}),
     ...(deps.onRows ? { onRows: deps.onRows } : {}),
+    ...(deps.onScan ? { onScan: deps.onScan } : {}),
   })
   signal?.throwIfAborted()
   const byFile = groupByFile(read.partials)

@@ -47,7 +47,11 @@ export function demoCommand(deps: CliDeps): CommandModule<object, Args> {
         },
       })
       const progress = createProgress(deps.log, deps.isTty, deps.now)
-      const summary = await runJob(config, { full: true }, { ...deps, onRows: progress.onRows }).finally(progress.done)
+      const summary = await runJob(
+        config,
+        { full: true },
+        { ...deps, onRows: progress.onRows, onScan: progress.onScan },
+      ).finally(progress.done)
       if (args.json) {
         deps.stdout(`${JSON.stringify(summary)}\n`)
         return

@@ -90,7 +90,7 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
             noDeliver: !args.deliver,
             ...range,
           },
-          { ...deps, onRows: progress.onRows, discovery },
+          { ...deps, onRows: progress.onRows, onScan: progress.onScan, discovery },
         )
       } finally {
         progress.done()
