@@ -19,6 +19,11 @@ export interface LoggerOptions {
   readonly level?: string
   /** File descriptor to write to (default 2, stderr: stdout is for the `--json` summary). */
   readonly fd?: number
+  /**
+   * Where the lines go instead of `fd`: an object whose `write` takes whole lines and writes them at once (the
+   * CLI's terminal status line, which keeps its progress display below them).
+   */
+  readonly destination?: { write(chunk: string): void }
 }
 
 /**
@@ -32,7 +37,7 @@ export function createLogger(options: LoggerOptions = {}): Logger {
       base: { app: 'slopeshift' },
       redact: { paths: redactPaths, censor: '[redacted]' },
     },
-    pino.destination({ dest: options.fd ?? 2, sync: true }),
+    options.destination ?? pino.destination({ dest: options.fd ?? 2, sync: true }),
   )
 }
 

@@ -1,4 +1,5 @@
 import type { Logger } from '../log.js'
+import type { StatusLine } from './status-line.js'
 
 /** What every command gets from `main.ts`: no command creates its own logger, clock or signal. */
 export interface CliDeps {
@@ -8,8 +9,8 @@ export interface CliDeps {
   /** Aborted on SIGINT/SIGTERM; its `reason` is the signal name. */
   readonly signal: AbortSignal
   readonly now: () => number
-  /** True when stderr is a terminal (progress bar allowed). */
-  readonly isTty: boolean
+  /** The status line of stderr when it is a terminal (progress display allowed), else null. */
+  readonly statusLine: StatusLine | null
   /** Sets the process exit code for a successful command that must still signal something (e.g. `--fail-on-shift`). */
   readonly setExitCode: (code: number) => void
 }

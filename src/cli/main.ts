@@ -4,13 +4,20 @@
  * and maps errors to BSD sysexits codes (style.md 4.3). The only file that sets the exit code. The shipped
  * entry `dist/bundle/slopeshift.js` (launch.ts) runs this module from the bundle `dist/bundle/cli.cjs`.
  */
+import { writeSync } from 'node:fs'
 import { ExitCode, exitCodeOf, SlopeshiftError, StoppedError } from '../errors.js'
 import { createLogger } from '../log.js'
 import { buildCli } from './app.js'
 import type { CliDeps } from './deps.js'
+import { StatusLine } from './status-line.js'
 
 async function main(argv: readonly string[]): Promise<void> {
-  const log = createLogger({ level: process.env.SLOPESHIFT_LOG_LEVEL ?? 'info' })
+  // On a terminal, log lines go through the status line so that a progress display stays below them.
+  const statusLine = process.stderr.isTTY === true ? new StatusLine((chunk) => writeSync(2, chunk)) : null
+  const log = createLogger({
+    level: process.env.SLOPESHIFT_LOG_LEVEL ?? 'info',
+    ...(statusLine === null ? {} : { destination: statusLine }),
+  })
   const controller = new AbortController()
   const onSignal = (signal: 'SIGINT' | 'SIGTERM') => {
     if (controller.signal.aborted) {
@@ -27,7 +34,7 @@ async function main(argv: readonly string[]): Promise<void> {
     stdout: (text) => process.stdout.write(text),
     signal: controller.signal,
     now: Date.now,
-    isTty: process.stderr.isTTY === true,
+    statusLine,
     setExitCode: (code) => {
       process.exitCode = code
     },

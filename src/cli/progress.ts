@@ -5,6 +5,7 @@
  * ends, reports how far DuckDB estimates it is (`scanPercent`).
  */
 import type { Logger } from '../log.js'
+import type { StatusLine } from './status-line.js'
 
 export interface Progress {
   /** Reports the running total of rows read. */
@@ -15,23 +16,21 @@ export interface Progress {
   readonly done: () => void
 }
 
-/** Creates a progress reporter; `tty` enables the redrawn line on stderr. */
-export function createProgress(log: Logger, tty: boolean, now: () => number = Date.now): Progress {
+/** Creates a progress reporter; with `line` (stderr is a terminal) it also keeps that status line up to date. */
+export function createProgress(log: Logger, line: StatusLine | null, now: () => number = Date.now): Progress {
   const started = now()
   let lastLog = started
   let lastDraw = 0
-  let drawn = false
   /** Logs `fields` when 10 s passed since the last line, and redraws `line` when 100 ms did. */
-  const report = (fields: Record<string, number>, line: () => string): void => {
+  const report = (fields: Record<string, number>, text: () => string): void => {
     const t = now()
     if (t - lastLog >= 10_000) {
       lastLog = t
       log.info({ ...fields, heapUsed: process.memoryUsage().heapUsed }, 'progress')
     }
-    if (tty && t - lastDraw >= 100) {
+    if (line !== null && t - lastDraw >= 100) {
       lastDraw = t
-      drawn = true
-      process.stderr.write(`\r\x1b[2K${line()}`)
+      line.show(text())
     }
   }
   return {
@@ -46,8 +45,6 @@ export function createProgress(log: Logger, tty: boolean, now: () => number = Da
       const percent = Math.floor(Math.min(1, Math.max(0, fraction)) * 100)
       report({ scanPercent: percent }, () => `scanning Parquet files  ${percent} %`)
     },
-    done: () => {
-      if (drawn) process.stderr.write('\r\x1b[2K')
-    },
+    done: () => line?.clear(),
   }
 }

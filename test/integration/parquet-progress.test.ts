@@ -3,7 +3,7 @@ import { describe, expect, it } from 'vitest'
 import { openDuckDb } from '../../src/dataset/duckdb.js'
 import { readParquetPartials } from '../../src/dataset/parquet.js'
 import { quoteString } from '../../src/dataset/sql.js'
-import { parseWindow } from '../../src/kernel/window.js'
+import { parseWindow, type WindowSpec } from '../../src/kernel/window.js'
 import type { SourceFile } from '../../src/types.js'
 import { useParquetScratch } from '../helpers/parquet-write.js'
 import { powerDrawPlan } from '../helpers/power-plan.js'
@@ -12,6 +12,7 @@ import { powerDrawPlan } from '../helpers/power-plan.js'
 // the query runs. Invented data: 2 M readings of 200 compressor units, 20 row groups, written by DuckDB.
 
 const rows = 2_000_000
+const hourly = parseWindow('1h') as WindowSpec
 const day0 = Date.UTC(2026, 11, 1)
 
 describe('Parquet scan progress', () => {
@@ -33,7 +34,7 @@ describe('Parquet scan progress', () => {
 
   it('reports how far the REGR_* scan is, never backwards, ending at 1; the moments do not change', async () => {
     await write()
-    const plan = { ...powerDrawPlan(parseWindow('1h'), ['unit']), trackLag: false }
+    const plan = { ...powerDrawPlan(hourly, ['unit']), trackLag: false }
     const seen: number[] = []
     // one engine thread: the REGR_* sums are then bit-identical from scan to scan
     const withProgress = await readParquetPartials([file()], plan, {
@@ -56,7 +57,7 @@ describe('Parquet scan progress', () => {
     await write()
     const seen: number[] = []
     const counted: number[] = []
-    await readParquetPartials([file()], powerDrawPlan(parseWindow('1h'), ['unit']), {
+    await readParquetPartials([file()], powerDrawPlan(hourly, ['unit']), {
       threads: 2,
       onScan: (f) => seen.push(f),
       onRows: (n) => counted.push(n),

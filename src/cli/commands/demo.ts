@@ -46,7 +46,7 @@ export function demoCommand(deps: CliDeps): CommandModule<object, Args> {
           'output.root': path.join(dir, 'tables'),
         },
       })
-      const progress = createProgress(deps.log, deps.isTty, deps.now)
+      const progress = createProgress(deps.log, deps.statusLine, deps.now)
       const summary = await runJob(
         config,
         { full: true },

@@ -78,7 +78,7 @@ export function runCommand(deps: CliDeps): CommandModule<object, Args> {
             })
       discovery.catch(() => undefined) // the run reports it; a run that fails earlier must not crash on it
       const { runJob } = await import('../../pipeline/run.js')
-      const progress = createProgress(deps.log, args.progress && deps.isTty, deps.now)
+      const progress = createProgress(deps.log, args.progress ? deps.statusLine : null, deps.now)
       let summary: RunSummary
       try {
         summary = await runJob(
