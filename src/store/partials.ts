@@ -84,6 +84,15 @@ export interface PartialsDbOptions {
   readonly threads?: number
 }
 
+export interface WritePartialsOptions extends PartialsDbOptions {
+  /**
+   * false: the caller has made the target's folder and fsyncs it once after a batch of writes, before anything
+   * refers to the files (measured on 1,000 new files: the per-file folder fsync and mkdir were ~20 % of the time
+   * spent writing partials).
+   */
+  readonly syncFolder?: boolean
+}
+
 /** One (series, window) to keep when reading partials. */
 export interface WindowRef {
   readonly seriesId: string
@@ -124,7 +133,7 @@ export function ledgerPartialsFiles(
 /**
  * Writes the partials of one input file to `target` atomically: DuckDB writes
  * `<target>.tmp-<pid>` (zstd Parquet), the tmp file is fsynced and renamed over `target`, and the
- * folder is fsynced. Rows are sorted by (series id, window start, source path) so equal inputs give equal bytes.
+ * folder is fsynced (unless `syncFolder` is false: the caller does it once for a batch). Rows are sorted by (series id, window start, source path) so equal inputs give equal bytes.
  * An empty list still writes a file (zero rows), so every ledger entry has its partials file.
  *
  * The moments are gathered into one typed array per column and read by DuckDB during the COPY
@@ -136,12 +145,13 @@ export function ledgerPartialsFiles(
 export async function writePartials(
   target: string,
   partials: readonly PartialMoments[],
-  options: PartialsDbOptions = {},
+  options: WritePartialsOptions = {},
 ): Promise<void> {
   const tmp = `${target}.tmp-${process.pid}`
+  const syncFolder = options.syncFolder !== false
   try {
     const rows = gatherPartials(partials)
-    await ensureDir(dirname(target))
+    if (syncFolder) await ensureDir(dirname(target))
     await withConnection(options, (c) =>
       withColumnarRows(c, rows, (select) =>
         c.run(`COPY (${select(0)}) TO ${sqlString(tmp)} (FORMAT parquet, COMPRESSION zstd)`),
@@ -154,13 +164,35 @@ export async function writePartials(
       await handle.close()
     }
     await rename(tmp, target)
-    await fsyncDir(dirname(target))
+    if (syncFolder) await fsyncDir(dirname(target))
   } catch (cause) {
     await unlink(tmp).catch(() => undefined)
     throw new CantCreateError(`cannot write partials ${target}; check free space and permissions on the output root`, {
       context: { file: target },
       cause,
     })
+  }
+}
+
+/**
+ * Makes the folders of `targets` (before a batch of `writePartials` with `syncFolder: false`), or, with `sync`,
+ * fsyncs them (after it, before anything refers to the files).
+ *
+ * @throws CantCreateError naming the folder.
+ */
+export async function partialsFolders(targets: readonly string[], sync: boolean): Promise<void> {
+  for (const folder of new Set(targets.map((t) => dirname(t)))) {
+    try {
+      await (sync ? fsyncDir(folder) : ensureDir(folder))
+    } catch (cause) {
+      throw new CantCreateError(
+        `cannot write partials in ${folder}; check free space and permissions on the output root`,
+        {
+          context: { file: folder },
+          cause,
+        },
+      )
+    }
   }
 }
 

@@ -11,6 +11,7 @@ import {
   ledgerPartialsFiles,
   partialsColumns,
   partialsFilePath,
+  partialsFolders,
   readPartials,
   readPartialWindowStarts,
   writePartials,
@@ -123,6 +124,28 @@ describe('writePartials', () => {
     const err = await writePartials(partialsFilePath(root, '/lake/x', '00'.repeat(32)), []).catch((e: unknown) => e)
     expect(err).toMatchObject({ code: 'SLOPESHIFT_CANT_CREATE', exitCode: 73 })
     expect((err as Error).message).toMatch(/cannot write partials .*check free space and permissions/)
+  })
+
+  it('writes a batch into folders made once and synced once (syncFolder false)', async () => {
+    const targets = ['a', 'b', 'c'].map((f) => partialsFilePath(root, `/lake/${f}.parquet`, 'ab'.repeat(32)))
+    await partialsFolders(targets, false)
+    for (const t of targets) await writePartials(t, [], { syncFolder: false })
+    await partialsFolders(targets, true)
+    expect((await readdir(join(root, '_state', 'partials'))).sort()).toEqual(targets.map((t) => basename(t)).sort())
+  })
+
+  it('names the folder it cannot make for a batch', async () => {
+    await writeFile(join(root, '_state'), 'not a folder')
+    const target = partialsFilePath(root, '/lake/x', '00'.repeat(32))
+    const err = await partialsFolders([target], false).catch((e: unknown) => e)
+    expect(err).toMatchObject({
+      code: 'SLOPESHIFT_CANT_CREATE',
+      exitCode: 73,
+      context: { file: join(root, '_state', 'partials') },
+    })
+    // without the folder, a write that was told it exists fails the same way
+    const write = await writePartials(target, [], { syncFolder: false }).catch((e: unknown) => e)
+    expect(write).toMatchObject({ code: 'SLOPESHIFT_CANT_CREATE', exitCode: 73 })
   })
 })
 
