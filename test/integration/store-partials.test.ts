@@ -189,6 +189,13 @@ describe('readPartials', () => {
     const original = all.find((p) => p.file === '/lake/c.parquet' && p.key[0] === 'south' && p.windowStartMs === W0 + H)
     expect(original && sameMoments(some[5]?.moments ?? emptyMoments(), original.moments)).toBe(true)
     expect(await readPartials(targets, { windows: [] })).toEqual([])
+    // read a file or two per query: the same rows in the same order
+    for (const filesPerQuery of [1, 2]) {
+      expect(await readPartials(targets, { filesPerQuery })).toEqual(back)
+      expect(await readPartials(targets, { filesPerQuery, windowStarts: [W0 + H] })).toEqual(
+        back.filter((p) => p.windowStartMs === W0 + H),
+      )
+    }
   })
 
   it('fails with a data error naming the file when it is not a partials file', async () => {
