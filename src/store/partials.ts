@@ -468,20 +468,23 @@ export async function readPartials(
  */
 export async function readPartialWindowStarts(
   files: readonly string[],
-  options: PartialsDbOptions = {},
+  options: PartialsDbOptions & { readonly filesPerQuery?: number } = {},
 ): Promise<number[]> {
-  if (files.length === 0) return []
-  const sql =
-    `SELECT DISTINCT CAST(window_start_ms AS DOUBLE) FROM read_parquet([${files.map(sqlString).join(', ')}]) ` +
-    'ORDER BY 1'
-  try {
-    return await withConnection(options, async (c) =>
-      ((await c.runAndReadAll(sql)).getColumns()[0] ?? []).map((v) => num(v, 'window_start_ms', files[0] ?? '?')),
-    )
-  } catch (cause) {
-    if (cause instanceof DataError) throw cause
-    throw readError(files, cause)
+  const starts = new Set<number>()
+  // a few hundred files per query, as in readPartials
+  const perQuery = Math.max(1, options.filesPerQuery ?? 500)
+  for (let first = 0; first < files.length; first += perQuery) {
+    const chunk = files.slice(first, first + perQuery)
+    const sql = `SELECT DISTINCT CAST(window_start_ms AS DOUBLE) FROM read_parquet([${chunk.map(sqlString).join(', ')}])`
+    try {
+      const values = await withConnection(options, async (c) => (await c.runAndReadAll(sql)).getColumns()[0] ?? [])
+      for (const v of values) starts.add(num(v, 'window_start_ms', chunk[0] ?? '?'))
+    } catch (cause) {
+      if (cause instanceof DataError) throw cause
+      throw readError(chunk, cause)
+    }
   }
+  return [...starts].sort((a, b) => a - b)
 }
 
 /** The error for partials files DuckDB could not read: IoError when missing or not permitted, else DataError. */

@@ -222,6 +222,8 @@ describe('readPartialWindowStarts', () => {
       targets.push(target)
     }
     expect(await readPartialWindowStarts(targets)).toEqual([W0, W0 + H, W0 + 2 * H, W0 + 5 * H])
+    // a file per query: the same starts, once each
+    expect(await readPartialWindowStarts(targets, { filesPerQuery: 1 })).toEqual([W0, W0 + H, W0 + 2 * H, W0 + 5 * H])
     expect(await readPartialWindowStarts([])).toEqual([])
   })
 
