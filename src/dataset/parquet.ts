@@ -96,6 +96,11 @@ interface ScanProgress {
   readonly report: (fraction: number) => void
 }
 
+/** The progress of part `index` of `count` equal parts of the work `whole` reports on. */
+function partOf(whole: ScanProgress, index: number, count: number): ScanProgress {
+  return { every: whole.every, report: (f) => whole.report((index + f) / count) }
+}
+
 /**
  * Default rows per time slice of the lag block's scan. Measured on the 10 M-row bench file (1 M-row row
  * groups, hourly windows, 2 threads): slices of one row group plus at most one window each (~1.4 M rows)
@@ -170,12 +175,11 @@ export async function readParquetPartials(
     const groups = groupByFileKeys(files, plan, perScan)
     for (const [g, group] of groups.entries()) {
       signal?.throwIfAborted()
-      const onScan = options.onScan
-      // the share of this group: groups count alike, whatever their size
-      const scanned: ScanProgress | undefined =
-        onScan === undefined
+      // groups count alike, whatever their size
+      const scanned =
+        options.onScan === undefined
           ? undefined
-          : { every: options.scanProgressMs ?? 250, report: (f) => onScan((g + f) / groups.length) }
+          : partOf({ every: options.scanProgressMs ?? 250, report: options.onScan }, g, groups.length)
       const x = checkColumns(group.files, plan, schemas)
       // ENUM types for the key columns (the SQL lag sort's and weighted join's keys, the row stream's codes
       // when hashes will not do), made at most once per file set
@@ -272,9 +276,7 @@ async function scanGroup(
       sql,
       group.files,
       signal,
-      progress === undefined
-        ? undefined
-        : { every: progress.every, report: (f) => progress.report((i + f) / slices.length) },
+      progress === undefined ? undefined : partOf(progress, i, slices.length),
     )
     signal?.throwIfAborted()
     collect(result, plan, q.keys, group.files, stats, pieces)

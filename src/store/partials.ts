@@ -384,75 +384,77 @@ export async function readPartials(
   // A few hundred files per query: one new file over the 10,000-file ledger bench re-reads ~1,250 partials files;
   // 500 per query made that run 2.99-3.14 s and 359-421 MB at peak instead of 3.29-3.68 s and 488-490 MB.
   const perQuery = Math.max(1, options.filesPerQuery ?? 500)
-  for (let first = 0; first < files.length; first += perQuery) {
-    const chunk = files.slice(first, first + perQuery)
-    const sql =
-      `SELECT ${names.join(', ')}, filename FROM read_parquet([${chunk.map(sqlString).join(', ')}], filename = true)` +
-      (starts === null ? '' : ` WHERE window_start_ms IN (${starts.join(', ')})`)
-    let columns: DuckDBValue[][]
-    try {
-      columns = await withConnection(options, async (c) => (await c.runAndReadAll(sql)).getColumns())
-    } catch (cause) {
-      throw readError(chunk, cause)
+  await withConnection(options, async (db) => {
+    for (let first = 0; first < files.length; first += perQuery) {
+      const chunk = files.slice(first, first + perQuery)
+      const sql =
+        `SELECT ${names.join(', ')}, filename FROM read_parquet([${chunk.map(sqlString).join(', ')}], filename = true)` +
+        (starts === null ? '' : ` WHERE window_start_ms IN (${starts.join(', ')})`)
+      let columns: DuckDBValue[][]
+      try {
+        columns = (await db.runAndReadAll(sql)).getColumns()
+      } catch (cause) {
+        throw readError(chunk, cause)
+      }
+      const index = new Map<string, number>([...names, 'filename'].map((n, i) => [n, i]))
+      const c = (name: (typeof names)[number] | 'filename'): DuckDBValue[] => columns[index.get(name) ?? -1] ?? []
+      const [sourcePath, series, start, n, wSum, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped, lagPresent] = [
+        c('source_path'),
+        c('series_id'),
+        c('window_start_ms'),
+        c('n'),
+        c('w_sum'),
+        c('x_mean'),
+        c('y_mean'),
+        c('sxx'),
+        c('syy'),
+        c('sxy'),
+        c('x_min'),
+        c('x_max'),
+        c('skipped'),
+        c('lag_present'),
+      ]
+      const lagPairs = c('lag_pairs')
+      const lagInOrder = c('lag_in_order')
+      const lagDoubles = lagDoubleFields.map((f) => [f, c(lagColumnOf[f])] as const)
+      const filename = c('filename')
+      for (let i = 0; i < series.length; i++) {
+        const from = str(filename[i], 'filename', '?')
+        const id = str(series[i], 'series_id', from)
+        const windowStartMs = num(start[i], 'window_start_ms', from)
+        if (wanted !== null && !wanted.has(windowKey(id, windowStartMs))) continue
+        let lag: LagBlock | null = null
+        if (bool(lagPresent[i], 'lag_present', from)) {
+          const g: LagBlock = { ...emptyLag(), pairs: num(lagPairs[i], 'lag_pairs', from) }
+          for (const [f, values] of lagDoubles) g[f] = num(values[i], lagColumnOf[f], from)
+          g.inOrder = bool(lagInOrder[i], 'lag_in_order', from)
+          lag = g
+        }
+        const moments: Moments = {
+          n: num(n[i], 'n', from),
+          wSum: num(wSum[i], 'w_sum', from),
+          xMean: num(xMean[i], 'x_mean', from),
+          yMean: num(yMean[i], 'y_mean', from),
+          sxx: num(sxx[i], 'sxx', from),
+          syy: num(syy[i], 'syy', from),
+          sxy: num(sxy[i], 'sxy', from),
+          xMin: num(xMin[i], 'x_min', from),
+          xMax: num(xMax[i], 'x_max', from),
+          skipped: num(skipped[i], 'skipped', from),
+          lag,
+        }
+        const key = parseKey(id, from)
+        const reason = invalidMomentsReason(moments)
+        if (reason !== null) {
+          throw new DataError(
+            `partials ${from} hold an invalid state for series ${id} at window ${windowStartMs}: ${reason}; delete the file and rerun with run --full`,
+            { context: { file: from, key: id } },
+          )
+        }
+        out.push({ id, p: { file: str(sourcePath[i], 'source_path', from), key, windowStartMs, moments } })
+      }
     }
-    const index = new Map<string, number>([...names, 'filename'].map((n, i) => [n, i]))
-    const c = (name: (typeof names)[number] | 'filename'): DuckDBValue[] => columns[index.get(name) ?? -1] ?? []
-    const [sourcePath, series, start, n, wSum, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped, lagPresent] = [
-      c('source_path'),
-      c('series_id'),
-      c('window_start_ms'),
-      c('n'),
-      c('w_sum'),
-      c('x_mean'),
-      c('y_mean'),
-      c('sxx'),
-      c('syy'),
-      c('sxy'),
-      c('x_min'),
-      c('x_max'),
-      c('skipped'),
-      c('lag_present'),
-    ]
-    const lagPairs = c('lag_pairs')
-    const lagInOrder = c('lag_in_order')
-    const lagDoubles = lagDoubleFields.map((f) => [f, c(lagColumnOf[f])] as const)
-    const filename = c('filename')
-    for (let i = 0; i < series.length; i++) {
-      const from = str(filename[i], 'filename', '?')
-      const id = str(series[i], 'series_id', from)
-      const windowStartMs = num(start[i], 'window_start_ms', from)
-      if (wanted !== null && !wanted.has(windowKey(id, windowStartMs))) continue
-      let lag: LagBlock | null = null
-      if (bool(lagPresent[i], 'lag_present', from)) {
-        const g: LagBlock = { ...emptyLag(), pairs: num(lagPairs[i], 'lag_pairs', from) }
-        for (const [f, values] of lagDoubles) g[f] = num(values[i], lagColumnOf[f], from)
-        g.inOrder = bool(lagInOrder[i], 'lag_in_order', from)
-        lag = g
-      }
-      const moments: Moments = {
-        n: num(n[i], 'n', from),
-        wSum: num(wSum[i], 'w_sum', from),
-        xMean: num(xMean[i], 'x_mean', from),
-        yMean: num(yMean[i], 'y_mean', from),
-        sxx: num(sxx[i], 'sxx', from),
-        syy: num(syy[i], 'syy', from),
-        sxy: num(sxy[i], 'sxy', from),
-        xMin: num(xMin[i], 'x_min', from),
-        xMax: num(xMax[i], 'x_max', from),
-        skipped: num(skipped[i], 'skipped', from),
-        lag,
-      }
-      const key = parseKey(id, from)
-      const reason = invalidMomentsReason(moments)
-      if (reason !== null) {
-        throw new DataError(
-          `partials ${from} hold an invalid state for series ${id} at window ${windowStartMs}: ${reason}; delete the file and rerun with run --full`,
-          { context: { file: from, key: id } },
-        )
-      }
-      out.push({ id, p: { file: str(sourcePath[i], 'source_path', from), key, windowStartMs, moments } })
-    }
-  }
+  })
   return out
     .sort(
       (a, b) => comparePaths(a.id, b.id) || a.p.windowStartMs - b.p.windowStartMs || comparePaths(a.p.file, b.p.file),
@@ -473,17 +475,19 @@ export async function readPartialWindowStarts(
   const starts = new Set<number>()
   // a few hundred files per query, as in readPartials
   const perQuery = Math.max(1, options.filesPerQuery ?? 500)
-  for (let first = 0; first < files.length; first += perQuery) {
-    const chunk = files.slice(first, first + perQuery)
-    const sql = `SELECT DISTINCT CAST(window_start_ms AS DOUBLE) FROM read_parquet([${chunk.map(sqlString).join(', ')}])`
-    try {
-      const values = await withConnection(options, async (c) => (await c.runAndReadAll(sql)).getColumns()[0] ?? [])
+  await withConnection(options, async (db) => {
+    for (let first = 0; first < files.length; first += perQuery) {
+      const chunk = files.slice(first, first + perQuery)
+      const sql = `SELECT DISTINCT CAST(window_start_ms AS DOUBLE) FROM read_parquet([${chunk.map(sqlString).join(', ')}])`
+      let values: DuckDBValue[]
+      try {
+        values = (await db.runAndReadAll(sql)).getColumns()[0] ?? []
+      } catch (cause) {
+        throw readError(chunk, cause)
+      }
       for (const v of values) starts.add(num(v, 'window_start_ms', chunk[0] ?? '?'))
-    } catch (cause) {
-      if (cause instanceof DataError) throw cause
-      throw readError(chunk, cause)
     }
-  }
+  })
   return [...starts].sort((a, b) => a - b)
 }
 
