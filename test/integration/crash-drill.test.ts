@@ -243,6 +243,9 @@ describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' :
     const aimed: Drill['kind'][] = Array(publishKills).fill('publish')
     let draws = 0
     let kills = 0
+    // An aimed kill misses when the run commits before the poller sees its manifest (a busy machine, e.g. the
+    // whole suite at once): it is aimed again, a few times at most.
+    let publishMisses = 0
     await Promise.all(
       Array.from({ length: workers }, async (_, w) => {
         const root = path.join(base, `w${w}`)
@@ -256,6 +259,10 @@ describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' :
           const d = await drill(root, config, kind, delayMs)
           drills.push(d)
           if (kind !== 'publish' && d.killed) kills++
+          if (kind === 'publish' && !d.killed && publishMisses < 4) {
+            publishMisses++
+            aimed.push('publish')
+          }
           for (const r of d.clean) {
             lengths.spawn.push(r.durationMs)
             const work = runLength(r, 'work')
@@ -268,14 +275,15 @@ describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' :
     const killed = random.filter((d) => d.killed)
     const stages = new Map<string, number>()
     for (const d of killed) stages.set(d.stage, (stages.get(d.stage) ?? 0) + 1)
-    const publish = drills.filter((d) => d.kind === 'publish')
+    const publish = drills.filter((d) => d.kind === 'publish' && d.killed)
     const summary = {
       referenceRunMs: Math.round(reference.durationMs),
       cleanRunMs: { spawn: Math.round(cleanMs('spawn')), work: Math.round(cleanMs('work')) },
       randomDraws: random.length,
       killed: killed.length,
       stageKilled: Object.fromEntries(stages),
-      publishKills: publish.filter((d) => d.killed).length,
+      publishKills: publish.length,
+      publishMisses,
       rolledBackByRerun: drills.filter((d) => d.rerun.stderr.includes('uncommitted publish rolled back')).length,
       wallMs: Math.round(performance.now() - started),
     }
@@ -284,7 +292,7 @@ describe.skipIf(!hasBuiltCli)(`runJob crash drill (${hasBuiltCli ? 'built CLI' :
     expect(killed.length).toBeGreaterThanOrEqual(randomKills)
     expect(stages.size, JSON.stringify(summary.stageKilled)).toBeGreaterThanOrEqual(Math.min(4, randomKills))
     // The aimed kills hit the publish window, and the rerun rolled their half-published tables back.
-    expect(publish.every((d) => d.killed)).toBe(true)
+    expect(publish.length, JSON.stringify(summary)).toBeGreaterThanOrEqual(publishKills)
     expect(publish.every((d) => d.rerun.stderr.includes('uncommitted publish rolled back'))).toBe(true)
   }, 600_000)
 })
