@@ -93,6 +93,15 @@ export interface WritePartialsOptions extends PartialsDbOptions {
   readonly syncFolder?: boolean
 }
 
+/**
+ * The codec of partials files. They are the job's own state, read back by every run that re-merges their windows, and
+ * most of a small one's cost is per column chunk: measured on the ledger bench's partials (~15 rows, 35 columns),
+ * snappy wrote a file in 1.7-1.8 ms against 2.4-2.5 ms for zstd and read 1,250 of them in 0.80-1.02 s against
+ * 1.16-1.39 s, at the same size; a 24,000-row file wrote in 50-57 ms against 64-67 ms, 17 % larger (3.6 MB).
+ * Files written with another codec read the same.
+ */
+const partialsCompression = 'snappy'
+
 /** One (series, window) to keep when reading partials. */
 export interface WindowRef {
   readonly seriesId: string
@@ -134,8 +143,9 @@ export function ledgerPartialsFiles(
 
 /**
  * Writes the partials of one input file to `target` atomically: DuckDB writes
- * `<target>.tmp-<pid>` (zstd Parquet), the tmp file is fsynced and renamed over `target`, and the
- * folder is fsynced (unless `syncFolder` is false: the caller does it once for a batch). Rows are sorted by (series id, window start, source path) so equal inputs give equal bytes.
+ * `<target>.tmp-<pid>` (snappy Parquet, see `partialsCompression`), the tmp file is fsynced and renamed over `target`,
+ * and the folder is fsynced (unless `syncFolder` is false: the caller does it once for a batch). Rows are sorted by
+ * (series id, window start, source path) so equal inputs give equal bytes.
  * An empty list still writes a file (zero rows), so every ledger entry has its partials file.
  *
  * The moments are gathered into one typed array per column and read by DuckDB during the COPY
@@ -156,7 +166,7 @@ export async function writePartials(
     if (syncFolder) await ensureDir(dirname(target))
     await withConnection(options, (c) =>
       withColumnarRows(c, rows, (select) =>
-        c.run(`COPY (${select(0)}) TO ${sqlString(tmp)} (FORMAT parquet, COMPRESSION zstd)`),
+        c.run(`COPY (${select(0)}) TO ${sqlString(tmp)} (FORMAT parquet, COMPRESSION ${partialsCompression})`),
       ),
     )
     const handle = await open(tmp, 'r')

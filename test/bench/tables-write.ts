@@ -119,10 +119,10 @@ try {
       `load average ${loadText()}\n`,
   )
   const reps = 7
-  await firstAndMedian('partials, serial off (zstd)', reps, (i) =>
+  await firstAndMedian('partials, serial off (snappy)', reps, (i) =>
     writePartials(join(root, 'partials', `off-${i}.parquet`), scale.partials, { connection }),
   )
-  await firstAndMedian('partials, serial ar1 (zstd)', reps, (i) =>
+  await firstAndMedian('partials, serial ar1 (snappy)', reps, (i) =>
     writePartials(join(root, 'partials', `ar1-${i}.parquet`), scale.lagPartials, { connection }),
   )
   const replaceWindowStarts = [...new Set(scale.fits.map((f) => f.window_start))]
