@@ -162,17 +162,17 @@ export async function readParquetPartials(
   const onAbort = () => db.interrupt()
   signal?.addEventListener('abort', onAbort, { once: true })
   try {
-    const perScan = Math.max(1, options.maxFilesPerScan ?? maxFilesPerScan)
+    const groups = groupByFileKeys(files, plan, Math.max(1, options.maxFilesPerScan ?? maxFilesPerScan))
+    // every file's schema before any scan, a group (at most maxFilesPerScan files) per query
     const schemas = new Map<string, FileSchema>()
-    for (let i = 0; i < files.length; i += perScan) {
-      for (const [path, schema] of await readSchemas(db, files.slice(i, i + perScan), signal)) schemas.set(path, schema)
+    for (const group of groups) {
+      for (const [path, schema] of await readSchemas(db, group.files, signal)) schemas.set(path, schema)
     }
     const stats = new Map<string, ReadStats>(files.map((f) => [f.path, { file: f.path, rows: 0, skipped: 0 }]))
     const runs: SeriesRun[] = []
     const lag = plan.trackLag && plan.weight === null
     let scan = 0
     let scans = 0
-    const groups = groupByFileKeys(files, plan, perScan)
     for (const [g, group] of groups.entries()) {
       signal?.throwIfAborted()
       // groups count alike, whatever their size
@@ -270,10 +270,9 @@ async function scanGroup(
   for (const [i, slice] of slices.entries()) {
     signal?.throwIfAborted()
     const q = momentsQuery(plan, slice === null ? source : { ...source, slice }, 'duckdb')
-    const sql = wrapQuery(q.sql, q.columns.length, q.keys.length)
     const result = await runScan(
       db,
-      sql,
+      wrapQuery(q.sql, q.columns.length, q.keys.length),
       group.files,
       signal,
       progress === undefined ? undefined : partOf(progress, i, slices.length),

@@ -179,11 +179,16 @@ export async function writePartials(
     if (syncFolder) await fsyncDir(dirname(target))
   } catch (cause) {
     await unlink(tmp).catch(() => undefined)
-    throw new CantCreateError(`cannot write partials ${target}; check free space and permissions on the output root`, {
-      context: { file: target },
-      cause,
-    })
+    throw cantWrite(target, cause)
   }
+}
+
+/** The error for a partials file or folder `path` that cannot be written (`in ` before a folder). */
+function cantWrite(path: string, cause: unknown, preposition = ''): CantCreateError {
+  return new CantCreateError(
+    `cannot write partials ${preposition}${path}; check free space and permissions on the output root`,
+    { context: { file: path }, cause },
+  )
 }
 
 /**
@@ -197,13 +202,7 @@ export async function partialsFolders(targets: readonly string[], sync: boolean)
     try {
       await (sync ? fsyncDir(folder) : ensureDir(folder))
     } catch (cause) {
-      throw new CantCreateError(
-        `cannot write partials in ${folder}; check free space and permissions on the output root`,
-        {
-          context: { file: folder },
-          cause,
-        },
-      )
+      throw cantWrite(folder, cause, 'in ')
     }
   }
 }
@@ -391,17 +390,13 @@ export async function readPartials(
         : null
   const names = partialsColumns.map(([n]) => n)
   const out: { p: PartialMoments; id: string }[] = []
-  // A few hundred files per query: one new file over the 10,000-file ledger bench re-reads ~1,250 partials files;
-  // 500 per query made that run 2.99-3.14 s and 359-421 MB at peak instead of 3.29-3.68 s and 488-490 MB.
-  const perQuery = Math.max(1, options.filesPerQuery ?? 500)
+  const index = new Map<string, number>([...names, 'filename'].map((n, i) => [n, i]))
   await withConnection(options, async (db) => {
-    for (let first = 0; first < files.length; first += perQuery) {
-      const chunk = files.slice(first, first + perQuery)
+    for (const chunk of queryChunks(files, options)) {
       const sql =
         `SELECT ${names.join(', ')}, filename FROM read_parquet([${chunk.map(sqlString).join(', ')}], filename = true)` +
         (starts === null ? '' : ` WHERE window_start_ms IN (${starts.join(', ')})`)
       const columns = await queryColumns(db, sql, chunk)
-      const index = new Map<string, number>([...names, 'filename'].map((n, i) => [n, i]))
       const c = (name: (typeof names)[number] | 'filename'): DuckDBValue[] => columns[index.get(name) ?? -1] ?? []
       const [sourcePath, series, start, n, wSum, xMean, yMean, sxx, syy, sxy, xMin, xMax, skipped, lagPresent] = [
         c('source_path'),
@@ -475,14 +470,11 @@ export async function readPartials(
  */
 export async function readPartialWindowStarts(
   files: readonly string[],
-  options: PartialsDbOptions & { readonly filesPerQuery?: number } = {},
+  options: PartialsDbOptions & Pick<ReadPartialsOptions, 'filesPerQuery'> = {},
 ): Promise<number[]> {
   const starts = new Set<number>()
-  // a few hundred files per query, as in readPartials
-  const perQuery = Math.max(1, options.filesPerQuery ?? 500)
   await withConnection(options, async (db) => {
-    for (let first = 0; first < files.length; first += perQuery) {
-      const chunk = files.slice(first, first + perQuery)
+    for (const chunk of queryChunks(files, options)) {
       const sql = `SELECT DISTINCT CAST(window_start_ms AS DOUBLE) FROM read_parquet([${chunk.map(sqlString).join(', ')}])`
       for (const v of (await queryColumns(db, sql, chunk))[0] ?? [])
         starts.add(num(v, 'window_start_ms', chunk[0] ?? '?'))
@@ -534,6 +526,18 @@ export async function gcPartials(root: string, ledger: { readonly files: readonl
   }
   if (removed.length > 0) await fsyncDir(dir)
   return removed
+}
+
+/**
+ * `files` in consecutive chunks of at most `filesPerQuery` (default 500), one query each. One new file over the
+ * 10,000-file ledger bench re-reads ~1,250 partials files: 500 per query made that run 2.99-3.14 s and 359-421 MB at
+ * peak instead of 3.29-3.68 s and 488-490 MB with one query.
+ */
+function queryChunks(files: readonly string[], options: { readonly filesPerQuery?: number }): string[][] {
+  const per = Math.max(1, options.filesPerQuery ?? 500)
+  const chunks: string[][] = []
+  for (let i = 0; i < files.length; i += per) chunks.push(files.slice(i, i + per))
+  return chunks
 }
 
 /**
