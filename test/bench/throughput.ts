@@ -275,6 +275,28 @@ async function runBaseline(input: MetricsInput, threads: number, form: BaselineF
   return { run, rows: r.rowsInFile, error: null, extra: r, phases }
 }
 
+/** One run of after-scan-floor.mjs: the floor of the work after the scan, per step, ms. */
+interface FloorRun {
+  readonly ms: Readonly<Record<string, number>>
+  readonly totalMs: number
+}
+
+/** The floor of the work after the scan (after-scan-floor.mjs) on the output root of a finished serial-off run. */
+async function runFloor(root: string, threads: number): Promise<FloorRun | string> {
+  const script = path.join(projectRoot, 'test', 'bench', 'after-scan-floor.mjs')
+  const run = await runProcess(process.execPath, [script, root, String(threads), 'zstd'])
+  if (run.exitCode !== 0) return `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}`
+  return JSON.parse(lastLine(run.stdout)) as FloorRun
+}
+
+/** The floor of the ordered row stream the serial adjustment reads (ordered-stream-floor.mjs), ms. */
+async function runStreamFloor(input: MetricsInput, threads: number): Promise<number | string> {
+  const script = path.join(projectRoot, 'test', 'bench', 'ordered-stream-floor.mjs')
+  const run = await runProcess(process.execPath, ['--expose-gc', script, input.path, String(threads)])
+  if (run.exitCode !== 0) return `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}`
+  return (JSON.parse(lastLine(run.stdout)) as { streamMs: number }).streamMs
+}
+
 /** One fresh process that reads the Arrow file `reps` times with the built reader. */
 async function runArrowInProcess(
   input: MetricsInput,
@@ -312,6 +334,22 @@ export interface ThroughputResult {
     /** The same against the `date_trunc` form of the hand-written query (context; the ratio above is the reference). */
     dateTruncRowsPerS: number | null
     ratioVsDateTrunc: number | null
+  }[]
+  /**
+   * Per Parquet input: the floor of the work after the scan (serial adjustment off; median over its runs) and the
+   * highest ratio a slopeshift doing that work at its floor could reach, with its own scan and with a scan as fast
+   * as the hand-written query's; with the serial adjustment, the floor of the ordered row stream it must read and
+   * the ratio bound with that stream as the scan.
+   */
+  readonly bound: {
+    readonly input: string
+    readonly floorMs: Readonly<Record<string, number>> | null
+    readonly floorTotalMs: number | null
+    readonly ratioBoundOwnScan: number | null
+    readonly ratioBoundBareScan: number | null
+    readonly streamFloorMs: number | null
+    readonly ratioBoundAr1: number | null
+    readonly error: string | null
   }[]
   readonly arrowInProcess: {
     readonly input: string
@@ -459,6 +497,73 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
     )
   }
 
+  const bound: ThroughputResult['bound'] = []
+  for (const input of inputs.filter((i) => i.format === 'parquet')) {
+    const v = variants.find((x) => x.input === input && x.serial === 'off')
+    const mine = cli.find((c) => c.input === input.name && c.label.endsWith('serial off'))
+    const base = baseline.find((b) => b.label === baselineLabel(input.name, 'integer'))
+    if (v?.config === undefined || mine?.ok !== true) continue
+    const floors: FloorRun[] = []
+    const streams: number[] = []
+    let error: string | null = null
+    for (let rep = 0; rep < Math.max(3, opts.reps); rep++) {
+      const f = await runFloor(v.config.root, opts.threads)
+      if (typeof f === 'string') error = f
+      else floors.push(f)
+      const ms = await runStreamFloor(input, opts.threads)
+      if (typeof ms === 'string') error = ms
+      else streams.push(ms)
+    }
+    const steps = floors[0] === undefined ? [] : Object.keys(floors[0].ms)
+    const floorMs =
+      floors.length === 0 ? null : Object.fromEntries(steps.map((k) => [k, median(floors.map((f) => f.ms[k] ?? 0))]))
+    const floorTotalMs = floors.length === 0 ? null : median(floors.map((f) => f.totalMs))
+    // Bound = the hand-written query's wall ÷ the wall of a slopeshift whose work after the scan cost its floor.
+    const boundOf = (scanMs: number | undefined): number | null => {
+      const p = mine.phases
+      const bareWallMs = (base?.medianWallS ?? Number.NaN) * 1000
+      if (p === null || floorTotalMs === null || scanMs === undefined || !(bareWallMs > 0)) return null
+      return bareWallMs / (p.startup + scanMs + floorTotalMs + p.exit)
+    }
+    const streamFloorMs = streams.length === 0 ? null : median(streams)
+    bound.push({
+      input: input.name,
+      floorMs,
+      floorTotalMs,
+      ratioBoundOwnScan: boundOf(mine.phases?.read),
+      ratioBoundBareScan: boundOf(base?.phases?.read),
+      streamFloorMs,
+      ratioBoundAr1: boundOf(streamFloorMs ?? undefined),
+      error,
+    })
+  }
+  if (bound.length > 0) {
+    printTable(
+      "ratio bound: the floor of the work after the scan (after-scan-floor.mjs: fetch, fits, tests, three files written by the engine, fsync; median ms) and the highest ratio a slopeshift whose work after the scan cost only that could reach = hand-written wall ÷ (slopeshift start-up + scan + floor + exit); serial off with slopeshift's scan and with the hand-written query's; ar1 with the ordered row stream the lag block must read (ordered-stream-floor.mjs) as the scan",
+      [
+        'input',
+        'floor ms per step',
+        'floor ms',
+        'ratio bound off, own scan',
+        'ratio bound off, hand-written scan',
+        'ordered stream ms',
+        'ratio bound ar1',
+      ],
+      bound.map((b) => [
+        b.input,
+        b.error ??
+          Object.entries(b.floorMs ?? {})
+            .map(([k, ms]) => `${k} ${fmt(ms, 0)}`)
+            .join(', '),
+        fmt(b.floorTotalMs, 0),
+        fmt(b.ratioBoundOwnScan, 2),
+        fmt(b.ratioBoundBareScan, 2),
+        fmt(b.streamFloorMs, 0),
+        fmt(b.ratioBoundAr1, 2),
+      ]),
+    )
+  }
+
   const arrowInProcess: ThroughputResult['arrowInProcess'] = []
   if (opts.formats.includes('arrow')) {
     const targets: { input: MetricsInput; serial: Serial; reps: number }[] = []
@@ -514,5 +619,5 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
       ]),
     )
   }
-  return { cli, baseline, ratios, arrowInProcess, skipped: data.skipped }
+  return { cli, baseline, ratios, bound, arrowInProcess, skipped: data.skipped }
 }
