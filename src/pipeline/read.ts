@@ -46,9 +46,13 @@ export async function readPartials(
       ...(options.onRows ? { onRows: options.onRows } : {}),
       ...(options.onScan ? { onScan: options.onScan } : {}),
     })
-    partials.push(...r.partials)
-    stats.push(...r.stats)
-    for (const s of r.stats) rows += s.rows
+    // One by one: push(...items) passes every item on the stack and overflows from about 120,000 items (one per
+    // file, series and window: 10,000 series over a day of hourly windows).
+    for (const p of r.partials) partials.push(p)
+    for (const s of r.stats) {
+      stats.push(s)
+      rows += s.rows
+    }
     options.onRows?.(rows)
     options.log.info(
       { files: parquet.length, rows, partials: r.partials.length, durationMs: Math.round(performance.now() - started) },
@@ -65,7 +69,7 @@ export async function readPartials(
       ...(options.signal ? { signal: options.signal } : {}),
       onProgress: (n) => options.onRows?.(before + n),
     })
-    partials.push(...r.partials)
+    for (const p of r.partials) partials.push(p)
     stats.push(r.stats)
     rows += r.stats.rows
     options.onRows?.(rows)
