@@ -143,6 +143,25 @@ describe('withColumnarRows', () => {
     expect(back.map((r) => r[1])).toEqual(['x|y', 'x', "q'q", '', 'x', '', 'ü'])
   })
 
+  it('serves a column of more distinct strings than it lists as codes as strings, in order and range', async () => {
+    // 20,000 distinct series ids (above the 16,384 a list takes; a long list cost DuckDB time per chunk), each twice
+    const ids = Array.from({ length: 40_000 }, (_, i) => `["unit-${i % 20_000}"]`)
+    const few = Array.from({ length: 40_000 }, (_, i) => `site-${i % 7}`)
+    const order = Uint32Array.from({ length: ids.length }, (_, p) => ids.length - 1 - p)
+    const rows = { columns: [column('id', 'VARCHAR', ids), column('site', 'VARCHAR', few)], rowCount: ids.length }
+    const back = await withColumnarRows(connection, { ...rows, order, ranges: [[100, 30_100]] }, async (select) => ({
+      sql: select(0),
+      rows: await rowsOf(select(0)),
+    }))
+    expect(back.sql).not.toContain('unit-')
+    expect(back.sql).toContain('site-6')
+    const expected = Array.from({ length: 30_000 }, (_, k) => {
+      const row = order[100 + k] as number
+      return [ids[row], few[row]]
+    })
+    expect(back.rows).toEqual(expected)
+  })
+
   it('serves one column even when every column holds a single value, and zero rows', async () => {
     const one = await withColumnarRows(
       connection,
