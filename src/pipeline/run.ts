@@ -11,6 +11,7 @@
  */
 import { rm } from 'node:fs/promises'
 import path from 'node:path'
+import v8 from 'node:v8'
 import type { DuckDBConnection } from '@duckdb/node-api'
 import type { Config } from '../config/schema.js'
 import { type Discovery, discoverFiles } from '../dataset/discover.js'
@@ -49,6 +50,7 @@ import { listTableFiles } from '../tables/read.js'
 import { replacePartitions, replaceWindows } from '../tables/write.js'
 import type { PartialMoments, SourceFile } from '../types.js'
 import { fitRows } from './fit-rows.js'
+import { heapAdvice } from './heap-check.js'
 import { discoverOptionsOf, momentsPlanOf, windowSpecOf } from './plan.js'
 import { readPartials } from './read.js'
 import { shiftRows } from './shift-rows.js'
@@ -208,6 +210,15 @@ async function runLocked(
     ...(deps.onScan ? { onScan: deps.onScan } : {}),
   })
   signal?.throwIfAborted()
+  const heap = heapAdvice(read.partials.length, v8.getHeapStatistics().heap_size_limit)
+  if (heap !== null) {
+    log.warn(
+      { partials: read.partials.length, ...heap },
+      `this run holds ${read.partials.length} (file, series, window) partials and may need about ${heap.estimatedMb} MB ` +
+        `of JavaScript heap, more than the ${heap.limitMb} MB limit allows: if it stops with "heap out of memory", ` +
+        `rerun with NODE_OPTIONS=--max-old-space-size=${heap.suggestedMb} (and that much memory free), or split the input across jobs with their own output.root`,
+    )
+  }
   const byFile = groupByFile(read.partials)
   let mark = performance.now()
   await writeAllPartials(
