@@ -3,8 +3,9 @@
  * table per section plus the machine; writes everything to `.bench/results.json`. Figures are
  * printed, never asserted (style.md §4.6).
  *
- *   tsx test/bench/run.ts [--only parquet,arrow,decide,ledger,tables] [--reps 3] [--threads 2]
- *                         [--decide-series 1000000] [--ledger-files 10000] [--ledger-budget 900] [--quick]
+ *   tsx test/bench/run.ts [--only parquet,arrow,decide,ledger,scale,tables] [--reps 3] [--threads 2]
+ *                         [--decide-series 1000000] [--ledger-files 10000] [--ledger-budget 900]
+ *                         [--scale-series 100000] [--quick]
  *
  * Sections:
  * - parquet: `slopeshift run` whole process on 10 M rows (Parquet snappy, zstd) vs a hand-written
@@ -15,6 +16,8 @@
  *   empty state is slow (one partials file per input file) and stopped after --ledger-budget
  *   seconds; when it completes, its output state is cached (keyed by a hash of dist/) and later
  *   bench runs start from a copy of it;
+ * - scale: 100,000 series × 4 hourly windows (2.4 M rows, 400,000 (series, window) pairs) through
+ *   `slopeshift run`, serial adjustment off and on: time per stage and peak RSS as the pairs grow;
  * - tables: the table-writer bench `test/bench/tables-write.ts` (not in the default set).
  * Inputs are generated once (seeded, deterministic) and cached under `.bench/data/`.
  */
@@ -27,11 +30,12 @@ import { benchDecide } from './decide.js'
 import { defaultMetricsSpec, ensureMetrics } from './gen-metrics.js'
 import { benchLedger } from './ledger.js'
 import { benchDir, lastLine, projectRoot, rssMethod, runProcess } from './lib.js'
+import { benchScale } from './scale.js'
 import { benchThroughput } from './throughput.js'
 
-const allSections = ['parquet', 'arrow', 'decide', 'ledger', 'tables'] as const
+const allSections = ['parquet', 'arrow', 'decide', 'ledger', 'scale', 'tables'] as const
 type Section = (typeof allSections)[number]
-const defaultSections: readonly Section[] = ['parquet', 'arrow', 'decide', 'ledger']
+const defaultSections: readonly Section[] = ['parquet', 'arrow', 'decide', 'ledger', 'scale']
 
 const { values } = parseArgs({
   options: {
@@ -41,6 +45,7 @@ const { values } = parseArgs({
     'decide-series': { type: 'string', default: '1000000' },
     'ledger-files': { type: 'string', default: '10000' },
     'ledger-budget': { type: 'string', default: '900' },
+    'scale-series': { type: 'string', default: '100000' },
     quick: { type: 'boolean', default: false },
   },
 })
@@ -118,6 +123,15 @@ if (sections.includes('decide')) {
   })
 }
 
+if (sections.includes('scale')) {
+  results.scale = await benchScale({
+    series: positiveInt('scale-series', values['scale-series']),
+    windows: 4,
+    rowsPerWindow: 6,
+    threads,
+  })
+}
+
 if (sections.includes('tables')) {
   const run = await runProcess(process.execPath, [
     path.join(projectRoot, 'node_modules', 'tsx', 'dist', 'cli.mjs'),
@@ -143,7 +157,7 @@ if (existsSync(out)) {
 }
 const kept = Object.fromEntries(
   Object.entries(previous).filter(
-    ([k]) => ['inputs', 'throughput', 'ledger', 'decide', 'tables'].includes(k) && !(k in results),
+    ([k]) => ['inputs', 'throughput', 'ledger', 'decide', 'scale', 'tables'].includes(k) && !(k in results),
   ),
 )
 const merged = {

@@ -48,7 +48,7 @@ export function parseSummary(stdout: string): SummaryFields | null {
 }
 
 /** The fields the bench reads from one pino log line. */
-interface LogRecord {
+export interface LogRecord {
   readonly msg: string
   readonly time?: unknown
   readonly stage?: unknown
@@ -56,7 +56,7 @@ interface LogRecord {
 }
 
 /** The pino log lines of a child's stderr, in order (other lines skipped). */
-function logRecords(stderr: string): LogRecord[] {
+export function logRecords(stderr: string): LogRecord[] {
   const out: LogRecord[] = []
   for (const line of stderr.split('\n')) {
     if (!line.startsWith('{')) continue
@@ -91,7 +91,7 @@ export interface Phases {
 }
 
 /** The phases of a `slopeshift run` from its log records (debug level) and the parent's spawn and exit times. */
-function cliPhases(records: readonly LogRecord[], startedAtMs: number, endedAtMs: number): Phases | null {
+export function cliPhases(records: readonly LogRecord[], startedAtMs: number, endedAtMs: number): Phases | null {
   const at = new Map<string, number>()
   const stages: Record<string, number> = {}
   for (const v of records) {
