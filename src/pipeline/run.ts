@@ -214,9 +214,10 @@ async function runLocked(
   if (heap !== null) {
     log.warn(
       { partials: read.partials.length, ...heap },
-      `this run holds ${read.partials.length} (file, series, window) partials and may need about ${heap.estimatedMb} MB ` +
-        `of JavaScript heap, more than the ${heap.limitMb} MB limit allows: if it stops with "heap out of memory", ` +
-        `rerun with NODE_OPTIONS=--max-old-space-size=${heap.suggestedMb} (and that much memory free), or split the input across jobs with their own output.root`,
+      `this run holds ${read.partials.length} (file, series, window) partials and may need about ` +
+        `${heap.estimatedMb} MB of JavaScript heap, more than the ${heap.limitMb} MB limit allows: if it stops with ` +
+        `"heap out of memory", rerun with NODE_OPTIONS=--max-old-space-size=${heap.suggestedMb} (and that much ` +
+        'memory free), or split the input across jobs with their own output.root',
     )
   }
   const byFile = groupByFile(read.partials)

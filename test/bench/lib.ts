@@ -124,6 +124,13 @@ export function fmt(x: number | null | undefined, digits = 1): string {
 }
 
 /** Prints a plain-text table (first column left-aligned, the rest right-aligned). */
+/** `name ms, name ms, …` of a record of milliseconds, rounded, in its order. */
+export function msList(record: Readonly<Record<string, number>>): string {
+  return Object.entries(record)
+    .map(([name, ms]) => `${name} ${fmt(ms, 0)}`)
+    .join(', ')
+}
+
 export function printTable(title: string, header: readonly string[], rows: readonly (readonly string[])[]): void {
   const widths = header.map((h, i) => Math.max(h.length, ...rows.map((r) => (r[i] ?? '').length)))
   const line = (cells: readonly string[]): string =>

@@ -10,7 +10,7 @@ import { existsSync } from 'node:fs'
 import { mkdir, rename, rm, writeFile } from 'node:fs/promises'
 import path from 'node:path'
 import { DuckDBInstance } from '@duckdb/node-api'
-import { benchDir, cliPath, fmt, lastLine, printTable, runProcess } from './lib.js'
+import { benchDir, cliPath, fmt, lastLine, msList, printTable, runProcess } from './lib.js'
 import { cliPhases, logRecords, parseSummary } from './throughput.js'
 
 export interface ScaleOptions {
@@ -92,9 +92,7 @@ export async function benchScale(opts: ScaleOptions): Promise<ScaleResult> {
       fmt(r.cpuS, 1),
       fmt(r.peakRssMb, 0),
       fmt(r.load1, 1),
-      Object.entries(r.stages)
-        .map(([name, ms]) => `${name} ${fmt(ms, 0)}`)
-        .join(', '),
+      msList(r.stages),
     ]),
   )
   return { options: opts, rows, runs }

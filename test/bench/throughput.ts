@@ -16,6 +16,7 @@ import {
   lastLine,
   maxOrNull,
   median,
+  msList,
   type ProcessRun,
   printTable,
   projectRoot,
@@ -483,16 +484,7 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
       ['whole process', 'start-up', 'scan', 'after', 'exit', 'stages after the scan'],
       phased.map((v) => {
         const p = v.phases as Phases
-        return [
-          v.label,
-          fmt(p.startup, 0),
-          fmt(p.read, 0),
-          fmt(p.after, 0),
-          fmt(p.exit, 0),
-          Object.entries(p.stages)
-            .map(([name, ms]) => `${name} ${fmt(ms, 0)}`)
-            .join(', '),
-        ]
+        return [v.label, fmt(p.startup, 0), fmt(p.read, 0), fmt(p.after, 0), fmt(p.exit, 0), msList(p.stages)]
       }),
     )
   }
@@ -551,10 +543,7 @@ export async function benchThroughput(data: MetricsData, opts: ThroughputOptions
       ],
       bound.map((b) => [
         b.input,
-        b.error ??
-          Object.entries(b.floorMs ?? {})
-            .map(([k, ms]) => `${k} ${fmt(ms, 0)}`)
-            .join(', '),
+        b.error ?? msList(b.floorMs ?? {}),
         fmt(b.floorTotalMs, 0),
         fmt(b.ratioBoundOwnScan, 2),
         fmt(b.ratioBoundBareScan, 2),
