@@ -15,7 +15,8 @@ import {
 } from '../stats/fit.js'
 import { timeToLevel } from '../stats/projection.js'
 import { serialStats } from '../stats/serial.js'
-import type { FitRow } from '../types.js'
+import { type GatheredRows, type TextColumn, tableColumnsOf } from '../tables/column-builder.js'
+import type { SeriesKey } from '../types.js'
 
 export interface FitContext {
   readonly config: Config
@@ -31,13 +32,18 @@ export function weightKindOf(config: Config): WeightKind {
   return config.source.weight === undefined ? 'none' : config.source.weight.kind
 }
 
+/** The `fits/` rows of a run, gathered into the table's columns, and how many of them are open windows. */
+export interface FitTable extends GatheredRows {
+  readonly open: number
+}
+
 /**
- * One `fits/` row per merged state with at least one accepted row. Each row is built as one object literal: the
- * projection columns are computed into locals (no per-row options, prediction or column objects; only a configured
- * `projection.limit` builds its crossing per row), since a run builds ~24,000 rows and every short-lived object adds
- * to the minor GCs that dominate this stage.
+ * One `fits/` row per merged state with at least one accepted row, set straight into the table's columns
+ * (column-builder.ts): a run builds one row per series and window, and a row object of ~40 fields cost more than
+ * the fit itself. The projection columns are computed into locals (no per-row options, prediction or column
+ * objects; only a configured `projection.limit` builds its crossing per row).
  */
-export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow[] {
+export function fitRows(states: readonly MergedState[], ctx: FitContext): FitTable {
   const { config } = ctx
   const weights = weightKindOf(config)
   const mode = config.detect.serial === 'ar1_mild' ? 'ar1_mild' : 'ar1'
@@ -51,10 +57,17 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
   const adjusted = { level: p.confidence, nEff: Number.NaN }
   const pred = newPredictionScratch()
   const fitOptions = { weights, pValue: false }
-  const rows: FitRow[] = []
+  const table = tableColumnsOf('fits', config.source.keys, states.length)
+  const f = table.fields
+  const keyColumns = table.keys
+  const keys: SeriesKey[] = []
+  let open = 0
   for (const s of states) {
     const m = s.moments
     if (m.n === 0) continue
+    const i = keys.length
+    keys.push(s.key)
+    for (let k = 0; k < keyColumns.length; k++) (keyColumns[k] as TextColumn).set(i, s.key[k] ?? null)
     const start = s.windowStartMs
     const end = windowEndOf(ctx.window, start)
     const fit = fitLine(m, fitOptions)
@@ -90,47 +103,46 @@ export function fitRows(states: readonly MergedState[], ctx: FitContext): FitRow
       }
       if (p.limit !== undefined) limit = limitColumns(line, p.limit, start, spanL, unitMs, serial?.nEff, config)
     }
-    rows.push({
-      key: s.key,
-      window_start: start,
-      window_end: end,
-      window_state: end <= ctx.watermarkMs ? 'closed' : 'open',
-      x_unit: xUnit,
-      n: m.n,
-      w_sum: m.wSum,
-      x_mean: m.xMean,
-      y_mean: m.yMean,
-      sxx: m.sxx,
-      syy: m.syy,
-      sxy: m.sxy,
-      x_min: m.xMin,
-      x_max: m.xMax,
-      intercept: line?.intercept ?? null,
-      slope: line?.slope ?? null,
-      slope_se: line?.slopeSe ?? null,
-      intercept_se: line?.interceptSe ?? null,
-      r2: line?.r2 ?? null,
-      resid_sd: line?.residSd ?? null,
-      exact_fit: line?.exact ?? false,
-      r1: serial?.r1 ?? null,
-      durbin_watson: serial?.durbinWatson ?? null,
-      points_skipped: m.skipped,
-      proj_at: projAt,
-      proj_value: projValue,
-      proj_ci_low: ciLow,
-      proj_ci_high: ciHigh,
-      proj_pi_low: piLow,
-      proj_pi_high: piHigh,
-      limit_value: limit.value,
-      limit_at: limit.at,
-      limit_at_low: limit.atLow,
-      limit_at_high: limit.atHigh,
-      limit_note: limit.note,
-      run_id: ctx.runId,
-      computed_at: ctx.computedAtMs,
-    })
+    const closed = end <= ctx.watermarkMs
+    if (!closed) open++
+    f.window_start.set(i, start)
+    f.window_end.set(i, end)
+    f.window_state.set(i, closed ? 'closed' : 'open')
+    f.x_unit.set(i, xUnit)
+    f.n.set(i, m.n)
+    f.w_sum.set(i, m.wSum)
+    f.x_mean.set(i, m.xMean)
+    f.y_mean.set(i, m.yMean)
+    f.sxx.set(i, m.sxx)
+    f.syy.set(i, m.syy)
+    f.sxy.set(i, m.sxy)
+    f.x_min.set(i, m.xMin)
+    f.x_max.set(i, m.xMax)
+    f.intercept.set(i, line?.intercept ?? null)
+    f.slope.set(i, line?.slope ?? null)
+    f.slope_se.set(i, line?.slopeSe ?? null)
+    f.intercept_se.set(i, line?.interceptSe ?? null)
+    f.r2.set(i, line?.r2 ?? null)
+    f.resid_sd.set(i, line?.residSd ?? null)
+    f.exact_fit.set(i, line?.exact ?? false)
+    f.r1.set(i, serial?.r1 ?? null)
+    f.durbin_watson.set(i, serial?.durbinWatson ?? null)
+    f.points_skipped.set(i, m.skipped)
+    f.proj_at.set(i, projAt)
+    f.proj_value.set(i, projValue)
+    f.proj_ci_low.set(i, ciLow)
+    f.proj_ci_high.set(i, ciHigh)
+    f.proj_pi_low.set(i, piLow)
+    f.proj_pi_high.set(i, piHigh)
+    f.limit_value.set(i, limit.value)
+    f.limit_at.set(i, limit.at)
+    f.limit_at_low.set(i, limit.atLow)
+    f.limit_at_high.set(i, limit.atHigh)
+    f.limit_note.set(i, limit.note)
+    f.run_id.set(i, ctx.runId)
+    f.computed_at.set(i, ctx.computedAtMs)
   }
-  return rows
+  return { ...table.build(keys.length, (row) => keys[row] ?? null), open }
 }
 
 /** The `limit_*` columns of one row. */

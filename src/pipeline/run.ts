@@ -298,7 +298,7 @@ async function runLocked(
   lap('partials merged', { states: states.length })
   const current = states.filter((s) => starts.has(s.windowStartMs))
   const fits = fitRows(current, { config, window, watermarkMs, runId, computedAtMs: startedAt })
-  lap('fitted', { fits: fits.length })
+  lap('fitted', { fits: fits.rowCount })
   // The closed windows with data, i.e. the fits marked closed (fitRows skips empty states).
   const targets = current
     .filter((s) => s.moments.n > 0 && windowEndOf(window, s.windowStartMs) <= watermarkMs)
@@ -331,8 +331,8 @@ async function runLocked(
   const counted = {
     series: new Set(current.map((s) => s.id)).size,
     windows: {
-      total: fits.length,
-      open: fits.filter((f) => f.window_state === 'open').length,
+      total: fits.rowCount,
+      open: fits.open,
       remerged: current.length,
     },
     verdicts: verdictCounts(shifts),
@@ -431,7 +431,7 @@ async function runLocked(
   if (options.full === true || filePlan.changed.length > 0 || filePlan.deleted.length > 0) {
     await gcPartials(root, { files: entries })
   }
-  log.info({ files: toRead.length, rows: rowsRead, fits: fits.length, shifts: shifts.length }, 'run committed')
+  log.info({ files: toRead.length, rows: rowsRead, fits: fits.rowCount, shifts: shifts.length }, 'run committed')
 
   // Deliver what waits in the outbox (this run's digest and any left by earlier runs).
   let sent = 0

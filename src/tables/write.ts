@@ -20,6 +20,7 @@ import { join } from 'node:path'
 import type { DuckDBConnection } from '@duckdb/node-api'
 import { DataError, ExitCode, IoError, SlopeshiftError } from '../errors.js'
 import { type SeriesKey, seriesId } from '../types.js'
+import type { GatheredRows } from './column-builder.js'
 import {
   type ColumnarRows,
   compareUtf8,
@@ -132,11 +133,12 @@ export async function replacePartitions<T extends TableName>(
  * Window-level form of {@link replacePartitions} for incremental runs (fits, shifts): every existing row whose
  * `window_start` is in `options.replaceWindowStarts` is dropped, then the new rows are added. Partitions holding
  * those windows are rewritten even when no new row falls in them; a partition left with no rows is reported in
- * `removed` (its file is not written, the caller removes the published one at publish time).
+ * `removed` (its file is not written, the caller removes the published one at publish time). The new rows may come
+ * as row objects or already gathered into columns (column-builder.ts); both are checked alike.
  */
 export async function replaceWindows<T extends 'fits' | 'shifts'>(
   table: T,
-  rows: readonly TableRows[T][],
+  rows: readonly TableRows[T][] | GatheredRows,
   options: WriteTableOptions,
 ): Promise<ReplaceResult> {
   return writePartitions(table, rows, options, true)
@@ -144,7 +146,7 @@ export async function replaceWindows<T extends 'fits' | 'shifts'>(
 
 async function writePartitions(
   table: TableName,
-  rows: readonly unknown[],
+  rows: readonly unknown[] | GatheredRows,
   options: WriteTableOptions,
   mergeExisting: boolean,
 ): Promise<ReplaceResult> {
@@ -153,8 +155,8 @@ async function writePartitions(
   const staged = stageRows(table, columns, keyColumns, rows)
   const replaceStarts = mergeExisting ? [...new Set(options.replaceWindowStarts ?? [])].sort((a, b) => a - b) : []
   const replaceSet = new Set(replaceStarts)
-  const newRowsReplaced =
-    replaceStarts.length > 0 && rows.every((r) => replaceSet.has((r as { readonly window_start: number }).window_start))
+  const starts = staged.rows.columns.find((c) => c.name === 'window_start')?.data
+  const newRowsReplaced = replaceStarts.length > 0 && starts !== undefined && starts.every((s) => replaceSet.has(s))
   const partitions = new Set(staged.rangeOf.keys())
   for (const start of replaceStarts) {
     const name = partitionName(table, start)
@@ -236,12 +238,21 @@ function stageRows(
   table: TableName,
   columns: readonly ColumnSpec[],
   keyColumns: readonly string[],
-  rows: readonly unknown[],
+  rows: readonly unknown[] | GatheredRows,
 ): StagedRows {
   const spec = tableSpecs[table]
-  const rowCount = rows.length
-  const gathered = gatherFast(table, columns, keyColumns, rows) ?? gatherChecked(table, columns, keyColumns, rows)
-  const keyOf = (i: number): SeriesKey | null => (spec.hasKey ? (rows[i] as { key: SeriesKey }).key : null)
+  let rowCount: number
+  let gathered: GatheredColumn[]
+  let keyOf: (i: number) => SeriesKey | null
+  if (isGatheredRows(rows)) {
+    rowCount = rows.rowCount
+    gathered = checkGathered(table, columns, rows)
+    keyOf = rows.keyOf
+  } else {
+    rowCount = rows.length
+    gathered = gatherFast(table, columns, keyColumns, rows) ?? gatherChecked(table, columns, keyColumns, rows)
+    keyOf = (i) => (spec.hasKey ? (rows[i] as { key: SeriesKey }).key : null)
+  }
   const byName = new Map(gathered.map((g) => [g.name, g]))
   const source = byName.get(spec.partitionSource) as GatheredColumn
   // UTC day of each row's partition instant, and the partition folder of each day.
@@ -276,6 +287,49 @@ function stageRows(
   }
   ranges.push([0, 0])
   return { rows: { columns: gathered, rowCount, order, ranges }, rangeOf }
+}
+
+function isGatheredRows(rows: readonly unknown[] | GatheredRows): rows is GatheredRows {
+  return !Array.isArray(rows)
+}
+
+/**
+ * Columns gathered by the stage that computed them, checked as `gatherChecked` checks row objects: each is the
+ * table's column at its place, of the row count, and every value fits it (column by column, rows in order), so the
+ * first problem is named the same way.
+ */
+function checkGathered(table: TableName, columns: readonly ColumnSpec[], rows: GatheredRows): GatheredColumn[] {
+  return columns.map((column, c): GatheredColumn => {
+    const g = rows.columns[c]
+    if (g === undefined || g.name !== column.name || g.type !== column.type || g.data.length !== rows.rowCount) {
+      throw rowError(table, 0, null, `has no gathered column "${column.name}" (${column.type}) at place ${c}`)
+    }
+    const refused = firstRefused(g, column)
+    if (refused !== null) throw valueError(table, refused.row, rows.keyOf(refused.row), column, refused.raw)
+    return g
+  })
+}
+
+/** The first row of a gathered column whose value the column does not take (`valueCheck`), or null. */
+function firstRefused(g: GatheredColumn, column: ColumnSpec): { readonly row: number; readonly raw: unknown } | null {
+  const { data, nulls, dictionary } = g
+  const accepts = valueCheck(column)
+  // Strings are checked once per distinct string, doubles need none (any number is one).
+  const refusedCode = column.type === 'VARCHAR' ? dictionary.map((text) => !accepts(text)) : null
+  const each = column.type !== 'VARCHAR' && column.type !== 'DOUBLE'
+  for (let i = 0; i < data.length; i++) {
+    if (nulls !== null && nulls[i] === 1) {
+      if (!column.nullable) return { row: i, raw: null }
+      continue
+    }
+    const v = data[i] as number
+    if (refusedCode !== null) {
+      if (refusedCode[v] !== false) return { row: i, raw: dictionary[v] }
+    } else if (column.type === 'BOOLEAN') {
+      if (v !== 0 && v !== 1) return { row: i, raw: v }
+    } else if (each && !accepts(v)) return { row: i, raw: v }
+  }
+  return null
 }
 
 /** The columns through the compiled one-pass gatherer (gather.ts), or null when a row or value is refused. */
