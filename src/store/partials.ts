@@ -24,6 +24,7 @@ import type { LagBlock, Moments } from '../kernel/moments.js'
 import { emptyLag, invalidMomentsReason, lagDoubleFields } from '../kernel/moments.js'
 import type { LedgerEntry } from '../plan/files.js'
 import { comparePaths } from '../plan/files.js'
+import { TextColumn } from '../tables/column-builder.js'
 import { type ColumnarRows, type GatheredColumn, withColumnarRows } from '../tables/columnar.js'
 import type { PartialMoments, SeriesKey } from '../types.js'
 import { seriesId } from '../types.js'
@@ -213,15 +214,10 @@ export async function partialsFolders(targets: readonly string[], sync: boolean)
  */
 function gatherPartials(partials: readonly PartialMoments[]): ColumnarRows {
   const count = partials.length
-  const strings = () => ({
-    codes: new Uint32Array(count),
-    dictionary: [] as string[],
-    codeOf: new Map<string, number>(),
-    last: null as string | null,
-    lastCode: 0,
-  })
-  const paths = strings()
-  const ids = strings()
+  const text = (name: string) =>
+    new TextColumn({ name, type: 'VARCHAR', nullable: false, description: name, role: 'field' }, count)
+  const paths = text('source_path')
+  const ids = text('series_id')
   const numbers = new Map<string, Float64Array>()
   for (const [name, type] of partialsColumns)
     if (type === 'BIGINT' || type === 'DOUBLE') numbers.set(name, new Float64Array(count))
@@ -258,31 +254,18 @@ function gatherPartials(partials: readonly PartialMoments[]): ColumnarRows {
   // Lag columns are null where the lag block is absent.
   const lagNulls = new Uint8Array(count)
   let anyLagNull = false
-  const code = (s: ReturnType<typeof strings>, text: string, i: number): void => {
-    if (text !== s.last) {
-      let c = s.codeOf.get(text)
-      if (c === undefined) {
-        c = s.dictionary.length
-        s.codeOf.set(text, c)
-        s.dictionary.push(text)
-      }
-      s.last = text
-      s.lastCode = c
-    }
-    s.codes[i] = s.lastCode
-  }
   let lastKey: SeriesKey | null = null
   let lastId = ''
   for (let i = 0; i < count; i++) {
     const p = partials[i] as PartialMoments
     const m = p.moments
-    code(paths, p.file, i)
+    paths.set(i, p.file)
     // Partials of one series share their key array (the readers build one per series): its id is made once.
     if (p.key !== lastKey) {
       lastKey = p.key
       lastId = seriesId(p.key)
     }
-    code(ids, lastId, i)
+    ids.set(i, lastId)
     start[i] = wholeNumber(p.windowStartMs, 'window_start_ms')
     n[i] = wholeNumber(m.n, 'n')
     wSum[i] = m.wSum
@@ -317,18 +300,17 @@ function gatherPartials(partials: readonly PartialMoments[]): ColumnarRows {
     lag.lastY[i] = g.lastY
     inOrder[i] = g.inOrder ? 1 : 0
   }
+  const pathColumn = paths.build(count)
+  const idColumn = ids.build(count)
   const columns = partialsColumns.map(([name, type]): GatheredColumn => {
-    if (name === 'source_path' || name === 'series_id') {
-      const s = name === 'source_path' ? paths : ids
-      return { name, type, data: s.codes, dictionary: s.dictionary, nulls: null }
-    }
+    if (name === 'source_path' || name === 'series_id') return name === 'source_path' ? pathColumn : idColumn
     const nulls = anyLagNull && name.startsWith('lag_') && name !== 'lag_present' ? lagNulls : null
     if (name === 'lag_present' || name === 'lag_in_order') {
       return { name, type, data: name === 'lag_present' ? lagPresent : inOrder, dictionary: [], nulls }
     }
     return { name, type, data: column(name), dictionary: [], nulls }
   })
-  return { columns, rowCount: count, order: partialsOrder(ids, start, paths), ranges: [[0, count]] }
+  return { columns, rowCount: count, order: partialsOrder(idColumn, start, pathColumn), ranges: [[0, count]] }
 }
 
 /** A count or epoch ms as stored: a safe integer, else a TypeError naming the column. */
@@ -339,16 +321,13 @@ function wholeNumber(value: number, column: string): number {
 }
 
 /** Row positions sorted by (series id, window start, source path), or null when the rows are in that order. */
-function partialsOrder(
-  ids: { readonly codes: Uint32Array; readonly dictionary: readonly string[] },
-  start: Float64Array,
-  paths: { readonly codes: Uint32Array; readonly dictionary: readonly string[] },
-): Uint32Array | null {
-  const rank = (s: { readonly codes: Uint32Array; readonly dictionary: readonly string[] }): Uint32Array => {
+function partialsOrder(ids: GatheredColumn, start: Float64Array, paths: GatheredColumn): Uint32Array | null {
+  // The codes of a VARCHAR column, ranked by their strings.
+  const rank = (s: GatheredColumn): Uint32Array => {
     const ranked = s.dictionary.map((text, c) => [text, c] as const).sort((a, b) => comparePaths(a[0], b[0]))
     const rankOfCode = new Uint32Array(ranked.length)
     for (const [r, [, c]] of ranked.entries()) rankOfCode[c] = r
-    return s.codes.map((c) => rankOfCode[c] as number)
+    return Uint32Array.from(s.data, (c) => rankOfCode[c] as number)
   }
   const idRank = rank(ids)
   const pathRank = rank(paths)
