@@ -214,10 +214,8 @@ export async function partialsFolders(targets: readonly string[], sync: boolean)
  */
 function gatherPartials(partials: readonly PartialMoments[]): ColumnarRows {
   const count = partials.length
-  const text = (name: string) =>
-    new TextColumn({ name, type: 'VARCHAR', nullable: false, description: name, role: 'field' }, count)
-  const paths = text('source_path')
-  const ids = text('series_id')
+  const paths = new TextColumn({ name: 'source_path', type: 'VARCHAR' }, count)
+  const ids = new TextColumn({ name: 'series_id', type: 'VARCHAR' }, count)
   const numbers = new Map<string, Float64Array>()
   for (const [name, type] of partialsColumns)
     if (type === 'BIGINT' || type === 'DOUBLE') numbers.set(name, new Float64Array(count))

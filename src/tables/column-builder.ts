@@ -18,12 +18,15 @@ export interface GatheredRows {
   readonly keyOf: (row: number) => SeriesKey | null
 }
 
+/** What a column builder needs of its column: the published name and type. */
+type ColumnName = Pick<ColumnSpec, 'name' | 'type'>
+
 /** A number column (BIGINT, DOUBLE, TIMESTAMPTZ as epoch ms). */
 export class NumberColumn {
   private readonly data: Float64Array
   private nulls: Uint8Array | null = null
   constructor(
-    private readonly spec: ColumnSpec,
+    private readonly spec: ColumnName,
     capacity: number,
   ) {
     this.data = new Float64Array(capacity)
@@ -51,7 +54,7 @@ export class TextColumn {
   private last: string | null = null
   private lastCode = 0
   constructor(
-    private readonly spec: ColumnSpec,
+    private readonly spec: ColumnName,
     capacity: number,
   ) {
     this.codes = new Uint32Array(capacity)
@@ -88,7 +91,7 @@ export class TextColumn {
 export class FlagColumn {
   private readonly data: Uint8Array
   constructor(
-    private readonly spec: ColumnSpec,
+    private readonly spec: ColumnName,
     capacity: number,
   ) {
     this.data = new Uint8Array(capacity)
@@ -102,7 +105,7 @@ export class FlagColumn {
 }
 
 function gathered(
-  spec: ColumnSpec,
+  spec: ColumnName,
   data: GatheredColumn['data'],
   dictionary: readonly string[],
   nulls: Uint8Array | null,

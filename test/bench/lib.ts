@@ -124,6 +124,11 @@ export function fmt(x: number | null | undefined, digits = 1): string {
 }
 
 /** Prints a plain-text table (first column left-aligned, the rest right-aligned). */
+/** How a child that did not succeed ended: its exit code and the last line of its stderr. */
+export function failureOf(run: ProcessRun): string {
+  return `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}`
+}
+
 /** `name ms, name ms, …` of a record of milliseconds, rounded, in its order. */
 export function msList(record: Readonly<Record<string, number>>): string {
   return Object.entries(record)

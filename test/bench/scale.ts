@@ -10,7 +10,7 @@ import { existsSync } from 'node:fs'
 import { mkdir, rename, rm, writeFile } from 'node:fs/promises'
 import path from 'node:path'
 import { DuckDBInstance } from '@duckdb/node-api'
-import { benchDir, cliPath, fmt, lastLine, msList, printTable, runProcess } from './lib.js'
+import { benchDir, cliPath, failureOf, fmt, msList, printTable, runProcess } from './lib.js'
 import { cliPhases, logRecords, parseSummary } from './throughput.js'
 
 export interface ScaleOptions {
@@ -75,8 +75,7 @@ export async function benchScale(opts: ScaleOptions): Promise<ScaleResult> {
       peakRssMb: run.peakRssMb,
       load1: run.load1,
       stages: phases === null ? {} : { read: phases.read, ...phases.stages },
-      error:
-        run.exitCode === 0 && summary !== null ? null : `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}`,
+      error: run.exitCode === 0 && summary !== null ? null : failureOf(run),
     })
     await rm(root, { recursive: true, force: true })
     process.stdout.write('.')

@@ -12,6 +12,7 @@ import type { MetricsData, MetricsInput } from './gen-metrics.js'
 import {
   benchDir,
   cliPath,
+  failureOf,
   fmt,
   lastLine,
   maxOrNull,
@@ -218,7 +219,7 @@ async function runCli(config: string, root: string): Promise<RunRecord> {
   const records = logRecords(run.stderr)
   const readMs = stageMs(records, ['parquet files read'])
   if (run.exitCode !== 0 || s === null) {
-    return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
+    return { run, rows: null, error: failureOf(run) }
   }
   return {
     run,
@@ -254,8 +255,7 @@ async function runBaseline(input: MetricsInput, threads: number, form: BaselineF
   await rm(out, { force: true })
   const script = path.join(projectRoot, 'test', 'bench', 'duckdb-regr.mjs')
   const run = await runProcess(process.execPath, [script, input.path, String(threads), out, form])
-  if (run.exitCode !== 0)
-    return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
+  if (run.exitCode !== 0) return { run, rows: null, error: failureOf(run) }
   const r = JSON.parse(lastLine(run.stdout)) as {
     rowsInFile: number
     groups: number
@@ -286,7 +286,7 @@ interface FloorRun {
 async function runFloor(root: string, threads: number): Promise<FloorRun | string> {
   const script = path.join(projectRoot, 'test', 'bench', 'after-scan-floor.mjs')
   const run = await runProcess(process.execPath, [script, root, String(threads), 'zstd'])
-  if (run.exitCode !== 0) return `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}`
+  if (run.exitCode !== 0) return failureOf(run)
   return JSON.parse(lastLine(run.stdout)) as FloorRun
 }
 
@@ -294,7 +294,7 @@ async function runFloor(root: string, threads: number): Promise<FloorRun | strin
 async function runStreamFloor(input: MetricsInput, threads: number): Promise<number | string> {
   const script = path.join(projectRoot, 'test', 'bench', 'ordered-stream-floor.mjs')
   const run = await runProcess(process.execPath, ['--expose-gc', script, input.path, String(threads)])
-  if (run.exitCode !== 0) return `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}`
+  if (run.exitCode !== 0) return failureOf(run)
   return (JSON.parse(lastLine(run.stdout)) as { streamMs: number }).streamMs
 }
 
@@ -306,8 +306,7 @@ async function runArrowInProcess(
 ): Promise<{ run: ProcessRun; rows: number | null; error: string | null; extra?: Record<string, unknown> }> {
   const script = path.join(projectRoot, 'test', 'bench', 'arrow-read.mjs')
   const run = await runProcess(process.execPath, [script, input.path, serial, String(reps)])
-  if (run.exitCode !== 0)
-    return { run, rows: null, error: `exit ${run.exitCode}: ${lastLine(run.stderr).slice(0, 300)}` }
+  if (run.exitCode !== 0) return { run, rows: null, error: failureOf(run) }
   const r = JSON.parse(lastLine(run.stdout)) as {
     importMs: number
     passes: { ms: number; rows: number; partials: number; pointsUsed: number }[]
